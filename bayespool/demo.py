@@ -1,0 +1,101 @@
+"""The built-in demonstration: an invented two-stage screening run, decoded end to end.
+
+All data here is invented for the demonstration (see datasets/demo/README.md); it is not a check of
+anything. Three plates of 96 specimens at an invented prevalence of 3% are pooled in eights on an
+assay whose sensitivity falls with dilution; positive pools are followed by individual tests.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .assay import Assay, DilutionSensitivity
+from .decode import decode
+from .decode.posterior import Posterior
+from .io import write_frame
+from .run import Run
+
+DEMO_SEED = 20261201
+DEMO_ASSAY = Assay(0.995, DilutionSensitivity(se_max=0.97, r50=40.0, slope=1.2))
+PLATES, ROWS, COLS = 3, "ABCDEFGH", 12
+POOL_SIZE = 8
+PREVALENCE = 0.03
+
+
+def invented_run(seed: int = DEMO_SEED):
+    """Invented layout, readouts, samples and truth frames for the demo."""
+    rng = np.random.default_rng(seed)
+    wells = [(p + 1, f"{r}{c}") for p in range(PLATES) for c in range(1, COLS + 1) for r in ROWS]
+    n = len(wells)
+    ids = [f"SW{p}-{w}" for p, w in wells]
+    truth = rng.random(n) < PREVALENCE
+    load = np.where(truth, rng.normal(5.0, 1.3, n), 0.0)  # invented log10 copies per mL
+    samples = pd.DataFrame({"sample": ids, "plate": [f"plate{p}" for p, _ in wells],
+                            "well": [w for _, w in wells], "prior": PREVALENCE})
+    lay_rows, read_rows = [], []
+
+    def read(pool, members, replicates=1):
+        k, dpos = len(members), int(truth[members].sum())
+        p_pos = DEMO_ASSAY.positive_probability(np.array([k]), np.array([dpos]))[0]
+        conc = np.log10(max(np.sum(10.0 ** load[members][truth[members]]), 1.0) / k)
+        any_pos = False
+        for _ in range(replicates):
+            pos = bool(rng.random() < p_pos)
+            any_pos |= pos
+            ct = float(np.clip(44.0 - 3.32 * conc + rng.normal(0, 0.6), 14, 40)) if pos else None
+            read_rows.append({"pool": pool, "result": "positive" if pos else "negative",
+                              "ct": "" if ct is None else f"{ct:.1f}"})
+        return any_pos
+
+    for b in range(n // POOL_SIZE):
+        members = np.arange(b * POOL_SIZE, (b + 1) * POOL_SIZE)
+        pool = f"D{b + 1:03d}"
+        lay_rows += [{"pool": pool, "sample": ids[i]} for i in members]
+        if read(pool, members):
+            for i in members:  # follow-up: each member alone, read once
+                alone = f"I-{ids[i]}"
+                lay_rows.append({"pool": alone, "sample": ids[i]})
+                read(alone, np.array([i]))
+    layout = pd.DataFrame(lay_rows)
+    readouts = pd.DataFrame(read_rows)
+    truth_frame = pd.DataFrame({"sample": ids, "invented_truth": np.where(truth, "positive",
+                                                                          "negative")})
+    return layout, readouts, samples, truth_frame
+
+
+@dataclass
+class DemoResult:
+    folder: Path
+    posterior: Posterior
+    files: dict = field(default_factory=dict)
+    truth: pd.DataFrame | None = None
+
+    def agreement(self) -> dict:
+        calls = pd.Series(self.posterior.calls(), index=self.posterior.sample_ids)
+        truth = self.truth.set_index("sample")["invented_truth"].reindex(calls.index)
+        decided = calls != "inconclusive"
+        return {"decided": int(decided.sum()),
+                "correct": int((calls[decided] == truth[decided]).sum())}
+
+
+def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> DemoResult:
+    """Write the invented inputs, decode them, and write the posterior into ``folder``."""
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    layout, readouts, samples, truth = invented_run(seed)
+    files = {"layout": folder / "layout.csv", "readouts": folder / "readouts.csv",
+             "samples": folder / "samples.csv", "assay": folder / "assay.toml",
+             "truth": folder / "invented_truth.csv", "posterior": folder / "posterior.csv"}
+    write_frame(layout, files["layout"])
+    write_frame(readouts, files["readouts"])
+    write_frame(samples, files["samples"])
+    write_frame(truth, files["truth"])
+    DEMO_ASSAY.write(files["assay"])
+    run = Run.read(files["layout"], files["readouts"], files["samples"], prevalence=PREVALENCE)
+    assay = Assay.read(files["assay"])
+    posterior = decode(run, assay, method="auto")
+    write_frame(posterior.to_frame(), files["posterior"])
+    return DemoResult(folder, posterior, files, truth)

@@ -1,0 +1,165 @@
+"""Reading CSV and TOML input with file:line:column errors, and atomic output.
+
+All tabular input is UTF-8 CSV with a header row; values are kept as stripped strings and converted
+by the caller, which reports a bad cell through :func:`cell_error`. Output is written to a temporary
+file beside the target and renamed into place, so a failed run never touches an existing output.
+"""
+from __future__ import annotations
+
+import contextlib
+import io
+import os
+import re
+import tempfile
+from pathlib import Path
+
+import pandas as pd
+
+from .errors import InputError
+
+try:  # Python >= 3.11
+    import tomllib
+except ModuleNotFoundError:  # pragma: no cover - Python 3.10
+    import tomli as tomllib
+
+
+class Table:
+    """A CSV file read as strings, with what is needed to point at a cell in an error."""
+
+    def __init__(self, frame: pd.DataFrame, path: str, header: list[str]):
+        self.frame = frame
+        self.path = path
+        self.header = header
+
+    def __len__(self) -> int:
+        return len(self.frame)
+
+    def column_number(self, name: str) -> int:
+        return self.header.index(name) + 1
+
+    def line_of(self, row: int) -> int:
+        """1-based file line of data row ``row`` (0-based), counting the header and blank lines."""
+        return _line_of_row(self.path, row)
+
+    def error(self, message: str, row: int | None = None, column: str | None = None) -> InputError:
+        line = None if row is None else self.line_of(int(row))
+        col = None if column is None else self.column_number(column)
+        return InputError(message, self.path, line, col)
+
+
+def _line_of_row(path: str, row: int) -> int:
+    # Only used on the error path: count non-blank lines after the header.
+    with open(path, encoding="utf-8", newline="") as fh:
+        seen = -1  # the header is row -1
+        for lineno, text in enumerate(fh, start=1):
+            if text.strip() == "":
+                continue
+            if seen == row:
+                return lineno
+            seen += 1
+    return lineno  # pragma: no cover - row past the end
+
+
+def _check_utf8(path: str, raw: bytes) -> str:
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        before = raw[: exc.start]
+        line = before.count(b"\n") + 1
+        column = exc.start - (before.rfind(b"\n") + 1) + 1
+        raise InputError(f"not UTF-8 text (byte 0x{raw[exc.start]:02x})", path, line, column) from None
+
+
+def read_table(path: str | os.PathLike, required: list[str], what: str) -> Table:
+    """Read a CSV file as strings; check it exists, is UTF-8, is not empty, and has ``required``."""
+    path = str(path)
+    p = Path(path)
+    if not p.exists():
+        raise InputError(f"{what} file not found", path)
+    if p.is_dir():
+        raise InputError(f"{what} file is a folder", path)
+    raw = p.read_bytes()
+    text = _check_utf8(path, raw)
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    if text.strip() == "":
+        raise InputError(f"{what} file is empty (expected a header with {', '.join(required)})", path)
+    try:
+        frame = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False, na_filter=False,
+                            skipinitialspace=True)
+    except pd.errors.ParserError as exc:
+        match = re.search(r"line (\d+)", str(exc))
+        line = int(match.group(1)) if match else None
+        raise InputError(f"not a well-formed CSV table ({str(exc).strip()})", path, line) from None
+    header = [str(c).strip() for c in frame.columns]
+    frame.columns = header
+    missing = [c for c in required if c not in header]
+    if missing:
+        raise InputError(f"{what} file lacks column{'s' if len(missing) > 1 else ''} "
+                         f"{', '.join(repr(c) for c in missing)} (header has {', '.join(header)})",
+                         path, 1)
+    dup = [c for c in set(header) if header.count(c) > 1]
+    if dup:
+        raise InputError(f"column {dup[0]!r} appears twice in the header", path, 1)
+    for c in required:
+        frame[c] = frame[c].str.strip()
+    return Table(frame, path, header)
+
+
+def read_toml(path: str | os.PathLike, what: str) -> dict:
+    """Read a TOML file; malformed TOML is an InputError with its line and column."""
+    path = str(path)
+    p = Path(path)
+    if not p.exists():
+        raise InputError(f"{what} file not found", path)
+    raw = p.read_bytes()
+    text = _check_utf8(path, raw)
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        match = re.search(r"\(at line (\d+), column (\d+)\)", msg)
+        line = col = None
+        if match:
+            line, col = int(match.group(1)), int(match.group(2))
+            msg = msg[: match.start()].strip()
+        raise InputError(f"malformed TOML: {msg}", path, line, col) from None
+
+
+def check_output_path(path: str | os.PathLike) -> Path:
+    """Fail early, before any work, when the output folder is missing."""
+    target = Path(path)
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        raise InputError(f"output folder {str(folder)!r} does not exist", str(path))
+    if target.is_dir():
+        raise InputError("output path is a folder", str(path))
+    return target
+
+
+@contextlib.contextmanager
+def atomic_output(path: str | os.PathLike, mode: str = "w"):
+    """Yield an open temporary file beside ``path``; rename it into place only on success."""
+    target = check_output_path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=str(target.parent))
+    try:
+        with os.fdopen(fd, mode, encoding=None if "b" in mode else "utf-8",
+                       newline=None if "b" in mode else "") as fh:
+            yield fh
+        os.replace(tmp, target)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+
+
+def write_frame(frame: pd.DataFrame, path: str | os.PathLike, float_format: str = "%.10g") -> None:
+    """Write a DataFrame as CSV, atomically."""
+    with atomic_output(path) as fh:
+        frame.to_csv(fh, index=False, float_format=float_format, lineterminator="\n")
+
+
+def write_text(text: str, path: str | os.PathLike) -> None:
+    """Write text, atomically."""
+    with atomic_output(path) as fh:
+        fh.write(text)

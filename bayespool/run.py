@@ -1,0 +1,268 @@
+"""One batch of pooled tests: specimens, pools, memberships and readouts as integer-coded arrays.
+
+IDs are factorised once; the sample-pool graph is kept as CSR incidence in both directions
+(pool -> members, sample -> pools) in int32, so memory is linear in the number of memberships and
+nothing is dense. Replicate readouts of a pool are folded into counts of positive and negative reads.
+"""
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .defaults import PREVALENCE
+from .errors import InputError
+from .io import Table, read_table
+
+POSITIVE_WORDS = ("positive", "pos", "1")
+NEGATIVE_WORDS = ("negative", "neg", "0")
+INVALID_WORDS = ("invalid",)
+_RESULT = {**{w: 1 for w in POSITIVE_WORDS}, **{w: 0 for w in NEGATIVE_WORDS},
+           **{w: -1 for w in INVALID_WORDS}}
+
+
+def check_prevalence(value, name: str = "--prevalence") -> float:
+    """A prevalence strictly between 0 and 1 (NaN and infinities refused)."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"{name} must be a number strictly between 0 and 1, got {value!r}") from None
+    if not (0.0 < v < 1.0):
+        raise InputError(f"{name} must be strictly between 0 and 1, got {value!r}")
+    return v
+
+
+def csr(rows: np.ndarray, cols: np.ndarray, n_rows: int):
+    """CSR (ptr, indices) of the pairs (rows[i], cols[i]), stable in input order within a row."""
+    order = np.argsort(rows, kind="stable")
+    ptr = np.zeros(n_rows + 1, dtype=np.int64)
+    np.cumsum(np.bincount(rows, minlength=n_rows), out=ptr[1:])
+    return ptr, cols[order].astype(np.int32, copy=False)
+
+
+@dataclass(eq=False)
+class Run:
+    """Specimens, pools and readouts of one batch.
+
+    ``pool_ptr``/``pool_members``: members of pool t are ``pool_members[pool_ptr[t]:pool_ptr[t+1]]``.
+    ``sample_ptr``/``sample_pools``: pools of sample i, likewise. ``n_positive``/``n_negative``:
+    readouts of each pool (replicates folded). ``prior``: P(x_i = 1) before the readouts.
+    """
+
+    sample_ids: np.ndarray
+    pool_ids: np.ndarray
+    prior: np.ndarray
+    pool_ptr: np.ndarray
+    pool_members: np.ndarray
+    sample_ptr: np.ndarray
+    sample_pools: np.ndarray
+    n_positive: np.ndarray
+    n_negative: np.ndarray
+    samples: pd.DataFrame | None = None  # the samples file as read (plate, well, ...), if any
+    readout_ct: pd.DataFrame | None = None  # pool, result, ct of each readout with a ct column
+    sources: dict = field(default_factory=dict)
+    notes: list = field(default_factory=list)
+
+    # ---- sizes
+    @property
+    def n_samples(self) -> int:
+        return len(self.sample_ids)
+
+    @property
+    def n_pools(self) -> int:
+        return len(self.pool_ids)
+
+    @property
+    def n_memberships(self) -> int:
+        return len(self.pool_members)
+
+    @property
+    def pool_size(self) -> np.ndarray:
+        return np.diff(self.pool_ptr).astype(np.int64)
+
+    @property
+    def n_readouts(self) -> int:
+        return int(self.n_positive.sum() + self.n_negative.sum())
+
+    def members(self, t: int) -> np.ndarray:
+        return self.pool_members[self.pool_ptr[t]:self.pool_ptr[t + 1]]
+
+    def pools_of(self, i: int) -> np.ndarray:
+        return self.sample_pools[self.sample_ptr[i]:self.sample_ptr[i + 1]]
+
+    def log_likelihood(self, assay):
+        """Per-pool log L_t[d] as (ptr, values); see :meth:`bayespool.assay.Assay.log_likelihood`."""
+        tested = (self.n_positive + self.n_negative) > 0
+        assay.sensitivity.check_pool_sizes(self.pool_size[tested], self.sources.get("assay"))
+        return assay.log_likelihood(self.pool_size, self.n_positive, self.n_negative)
+
+    # ---- construction
+    @classmethod
+    def from_arrays(cls, pool_of_membership, sample_of_membership, n_samples: int, n_pools: int,
+                    prior, readout_pool=None, readout_result=None, sample_ids=None, pool_ids=None):
+        """Build from integer codes (membership pairs; readouts as pool index and 0/1 result)."""
+        pm = np.asarray(pool_of_membership, dtype=np.int64)
+        sm = np.asarray(sample_of_membership, dtype=np.int64)
+        pool_ptr, pool_members = csr(pm, sm, n_pools)
+        sample_ptr, sample_pools = csr(sm, pm, n_samples)
+        npos = np.zeros(n_pools, dtype=np.int32)
+        nneg = np.zeros(n_pools, dtype=np.int32)
+        if readout_pool is not None:
+            rp = np.asarray(readout_pool, dtype=np.int64)
+            rr = np.asarray(readout_result, dtype=np.int64)
+            npos = np.bincount(rp[rr == 1], minlength=n_pools).astype(np.int32)
+            nneg = np.bincount(rp[rr == 0], minlength=n_pools).astype(np.int32)
+        prior = np.broadcast_to(np.asarray(prior, dtype=float), (n_samples,)).copy()
+        if sample_ids is None:
+            sample_ids = np.array([f"S{i}" for i in range(n_samples)], dtype=object)
+        if pool_ids is None:
+            pool_ids = np.array([f"P{t}" for t in range(n_pools)], dtype=object)
+        return cls(np.asarray(sample_ids, dtype=object), np.asarray(pool_ids, dtype=object), prior,
+                   pool_ptr, pool_members, sample_ptr, sample_pools, npos, nneg)
+
+    @classmethod
+    def read(cls, layout, readouts=None, samples=None, prevalence: float = PREVALENCE) -> "Run":
+        """Read and validate the layout, readouts and samples files (interface.md)."""
+        lay = read_table(layout, ["pool", "sample"], "layout")
+        rd = read_table(readouts, ["pool", "result"], "readouts") if readouts is not None else None
+        sm = read_table(samples, ["sample"], "samples") if samples is not None else None
+        run = cls.from_tables(lay, rd, sm, prevalence)
+        run.sources.update({"layout": str(layout), "readouts": None if readouts is None else
+                            str(readouts), "samples": None if samples is None else str(samples)})
+        return run
+
+    @classmethod
+    def from_frames(cls, layout: pd.DataFrame, readouts: pd.DataFrame | None = None,
+                    samples: pd.DataFrame | None = None, prevalence: float = PREVALENCE) -> "Run":
+        """Build from DataFrames with the columns of the files (values converted to strings)."""
+        def table(df, name):
+            if df is None:
+                return None
+            f = df.astype(str).apply(lambda c: c.str.strip())
+            f = f.replace({"nan": "", "None": "", "<NA>": ""})
+            return Table(f.reset_index(drop=True), f"<{name}>", [str(c) for c in f.columns])
+        for df, cols, name in ((layout, ["pool", "sample"], "layout"),
+                               (readouts, ["pool", "result"], "readouts"),
+                               (samples, ["sample"], "samples")):
+            if df is not None:
+                missing = [c for c in cols if c not in df.columns]
+                if missing:
+                    raise InputError(f"{name} lacks column(s) {', '.join(missing)}")
+        return cls.from_tables(table(layout, "layout"), table(readouts, "readouts"),
+                               table(samples, "samples"), prevalence)
+
+    @classmethod
+    def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence) -> "Run":
+        prevalence = check_prevalence(prevalence)
+        lf = lay.frame
+        for col in ("pool", "sample"):
+            blank = np.flatnonzero((lf[col] == "").to_numpy())
+            if len(blank):
+                raise lay.error(f"empty {col} ID", blank[0], col)
+        dup = lf.duplicated(["pool", "sample"], keep="first").to_numpy()
+        if dup.any():
+            r = int(np.flatnonzero(dup)[0])
+            raise lay.error(f"sample {lf['sample'].iat[r]!r} appears twice in pool "
+                            f"{lf['pool'].iat[r]!r}", r, "sample")
+        pool_codes, pool_ids = pd.factorize(lf["pool"], sort=False)
+        sample_codes, sample_ids = pd.factorize(lf["sample"], sort=False)
+        sample_ids = np.asarray(sample_ids, dtype=object)
+        pool_ids = np.asarray(pool_ids, dtype=object)
+
+        # samples file: priors and plate map; samples it adds to the layout are untested
+        prior_values = None
+        samples_frame = None
+        if sm is not None:
+            sf = sm.frame
+            blank = np.flatnonzero((sf["sample"] == "").to_numpy())
+            if len(blank):
+                raise sm.error("empty sample ID", blank[0], "sample")
+            dup = sf.duplicated(["sample"]).to_numpy()
+            if dup.any():
+                r = int(np.flatnonzero(dup)[0])
+                raise sm.error(f"sample {sf['sample'].iat[r]!r} is listed twice", r, "sample")
+            extra = ~pd.Index(sf["sample"]).isin(pd.Index(sample_ids))
+            if extra.any():
+                sample_ids = np.concatenate([sample_ids, sf["sample"].to_numpy()[extra]])
+            index = pd.Index(sample_ids)
+            pos = index.get_indexer(sf["sample"])
+            prior_values = np.full(len(sample_ids), prevalence)
+            if "prior" in sf.columns:
+                raw = sf["prior"].str.strip()
+                given = (raw != "").to_numpy()
+                vals = pd.to_numeric(raw.where(given, "nan"), errors="coerce").to_numpy(dtype=float)
+                bad = given & ~((vals > 0) & (vals < 1))
+                if bad.any():
+                    r = int(np.flatnonzero(bad)[0])
+                    raise sm.error(f"prior {raw.iat[r]!r} must be a probability strictly between "
+                                   "0 and 1", r, "prior")
+                prior_values[pos[given]] = vals[given]
+            samples_frame = sf.copy()
+            samples_frame.index = pos
+            if extra.any():
+                n_extra = int(extra.sum())
+        n = len(sample_ids)
+        prior = prior_values if prior_values is not None else np.full(n, prevalence)
+
+        readout_pool = readout_result = None
+        ct_frame = None
+        notes = []
+        if sm is not None and extra.any():
+            notes.append(f"{n_extra} sample(s) of the samples file are in no pool; "
+                         "their probability stays at the prior")
+        if rd is not None:
+            rf = rd.frame
+            words = rf["result"].str.lower().map(_RESULT)
+            unknown = words.isna().to_numpy()
+            if unknown.any():
+                r = int(np.flatnonzero(unknown)[0])
+                raise rd.error(f"result {rf['result'].iat[r]!r} is not one of positive/negative "
+                               "(also pos/neg, 1/0) or invalid", r, "result")
+            res = words.to_numpy(dtype=np.int64)
+            pidx = pd.Index(pool_ids).get_indexer(rf["pool"])
+            missing = pidx < 0
+            if missing.any():
+                r = int(np.flatnonzero(missing)[0])
+                raise rd.error(f"pool {rf['pool'].iat[r]!r} has a readout but is not in the layout",
+                               r, "pool")
+            skipped = int((res < 0).sum())
+            if skipped:
+                msg = f"{skipped} invalid readout(s) skipped"
+                warnings.warn(msg, stacklevel=2)
+                notes.append(msg)
+            keep = res >= 0
+            readout_pool, readout_result = pidx[keep], res[keep]
+            if "ct" in rf.columns:
+                raw = rf["ct"].str.strip()
+                given = (raw != "").to_numpy()
+                vals = pd.to_numeric(raw.where(given, "nan"), errors="coerce").to_numpy(dtype=float)
+                bad = given & ~(np.isfinite(vals) & (vals > 0))
+                if bad.any():
+                    r = int(np.flatnonzero(bad)[0])
+                    raise rd.error(f"ct {raw.iat[r]!r} must be a positive number or blank", r, "ct")
+                ct_frame = pd.DataFrame({"pool": pidx[keep], "result": res[keep],
+                                         "ct": vals[keep]})
+        run = cls.from_arrays(pool_codes, sample_codes, n, len(pool_ids), prior, readout_pool,
+                              readout_result, sample_ids, pool_ids)
+        run.samples = samples_frame
+        run.readout_ct = ct_frame
+        run.notes = notes
+        return run
+
+    def with_readouts(self, readout_pool, readout_result) -> "Run":
+        """A copy with more readouts (pool indices, 0/1 results) folded in."""
+        rp = np.asarray(readout_pool, dtype=np.int64)
+        rr = np.asarray(readout_result, dtype=np.int64)
+        npos = self.n_positive + np.bincount(rp[rr == 1], minlength=self.n_pools).astype(np.int32)
+        nneg = self.n_negative + np.bincount(rp[rr == 0], minlength=self.n_pools).astype(np.int32)
+        return Run(self.sample_ids, self.pool_ids, self.prior, self.pool_ptr, self.pool_members,
+                   self.sample_ptr, self.sample_pools, npos, nneg, self.samples, self.readout_ct,
+                   dict(self.sources), list(self.notes))
+
+    def layout_frame(self) -> pd.DataFrame:
+        """The layout as a DataFrame (pool, sample), one row per membership."""
+        owner = np.repeat(np.arange(self.n_pools), self.pool_size)
+        return pd.DataFrame({"pool": self.pool_ids[owner], "sample": self.sample_ids[self.pool_members]})
