@@ -1,0 +1,1 @@
+"""Simulation of whole testing protocols on invented cohorts, for operating characteristics."""
