@@ -160,6 +160,6 @@ def impossible(run, pools) -> ImpossibleEvidenceError:
     more = f" and {len(pools) - 6} more" if len(pools) > 6 else ""
     where = run.sources.get("readouts")
     return ImpossibleEvidenceError(
-        "no status of the samples can explain the readouts of pools "
-        f"{', '.join(ids)}{more} under this assay (a sensitivity or specificity of 1 rules out "
-        "every combination); check the readouts or the assay file", where)
+        f"impossible evidence: the readouts of pools {', '.join(ids)}{more} cannot be explained by "
+        "any status of their samples under this assay (a sensitivity or specificity of 1 rules "
+        "out every combination); check the readouts or the assay file", where)
