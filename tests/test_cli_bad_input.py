@@ -160,3 +160,9 @@ def test_console_entry_point_reports_bad_input_without_traceback(files):
     res = subprocess.run([sys.executable, "-m", "bayespool", *decode_args(
         files, **{"--prevalence": "nan"})], cwd=ROOT, capture_output=True, text=True)
     assert res.returncode == 2 and "Traceback" not in res.stderr
+
+
+def test_empty_layout_and_no_samples_is_a_clear_error(cli, files):
+    write_csv(files["layout"], [], ["pool", "sample"])
+    write_csv(files["readouts"], [], ["pool", "result"])
+    assert_bad(cli(*decode_args(files, **{"--samples": None})), "layout.csv", "no samples")

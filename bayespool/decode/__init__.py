@@ -47,6 +47,9 @@ def decode(run: Run, assay, method: str = "auto",
     if method not in METHODS:
         raise InputError(f"unknown method {method!r} (choose one of {', '.join(METHODS)})")
     lo, hi = check_thresholds(negative_below, positive_above)
+    if run.n_samples == 0:
+        raise InputError("there are no samples to decode: the layout is empty and no samples file "
+                         "lists any", run.sources.get("layout"))
     lik_ptr, loglik = run.log_likelihood(assay)
     _check_pools_possible(run, lik_ptr, loglik)
     comps = components(run)

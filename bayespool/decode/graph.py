@@ -58,7 +58,7 @@ def components(run: Run) -> Components:
     s_lab = labels[:n]
     uniq, first = np.unique(s_lab, return_index=True)
     order = np.argsort(first, kind="stable")
-    remap = np.empty(labels.max() + 1, dtype=np.int64)
+    remap = np.empty(labels.max() + 1 if len(labels) else 0, dtype=np.int64)
     remap[uniq[order]] = np.arange(len(uniq))
     sample_label = remap[s_lab].astype(np.int32)
     n_comp = len(uniq)
