@@ -138,9 +138,301 @@ def _run_demo(args):
     return 0
 
 
+# ---- design
+def _int_list(text: str) -> list[int]:
+    try:
+        values = [int(v) for v in text.split(",") if v.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected whole numbers separated by commas, got "
+                                         f"{text!r}") from None
+    if not values:
+        raise argparse.ArgumentTypeError("expected at least one whole number")
+    return values
+
+
+def _float_list(text: str) -> list[float]:
+    try:
+        values = [float(v) for v in text.split(",") if v.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected numbers separated by commas, got "
+                                         f"{text!r}") from None
+    if not values:
+        raise argparse.ArgumentTypeError("expected at least one number")
+    return values
+
+
+def _read_assay_or_default(args):
+    from .assay import DEFAULT_ASSAY, Assay
+    if getattr(args, "assay", None):
+        return Assay.read(args.assay)
+    _note(args, f"no --assay given: assuming {DEFAULT_ASSAY.describe()}")
+    return DEFAULT_ASSAY
+
+
+def _add_design(sub):
+    p = sub.add_parser("design", help="make a pooling layout (dorfman, array, kautz-singleton, "
+                       "random) or find the best Dorfman pool size",
+                       description="Write a pooling layout (pool,sample) and print its properties: "
+                       "pools, pool sizes, pools per specimen and the disjunctness it guarantees. "
+                       "With --optimize, the Dorfman pool size with the fewest expected tests. "
+                       + CAUTION)
+    p.add_argument("--scheme", required=True,
+                   choices=("dorfman", "array", "kautz-singleton", "random"))
+    p.add_argument("--samples", metavar="N|CSV",
+                   help="number of specimens (IDs S0001...) or a samples file (sample column)")
+    p.add_argument("--out", metavar="CSV", help="layout to write: pool,sample")
+    p.add_argument("--max-pool-size", type=int, metavar="K",
+                   help="no pool may hold more than K specimens")
+    p.add_argument("--pool-size", type=int, metavar="K", help="dorfman: specimens per pool")
+    p.add_argument("--rows", type=int, metavar="R",
+                   help="array: rows per grid (default 8 x 12, or near-square for few specimens)")
+    p.add_argument("--cols", type=int, metavar="C", help="array: columns per grid")
+    p.add_argument("--positives", type=int, metavar="D",
+                   help="kautz-singleton: positives to single out without test error")
+    p.add_argument("--q", type=int, metavar="Q", help="kautz-singleton: prime field size")
+    p.add_argument("--dimension", type=int, metavar="M", help="kautz-singleton: code dimension")
+    p.add_argument("--length", type=int, metavar="L",
+                   help="kautz-singleton: code length, at most q (default q)")
+    p.add_argument("--pools-per-sample", type=int, default=2, metavar="W",
+                   help="random: pools each specimen is in (default: %(default)s)")
+    p.add_argument("--pools", type=int, metavar="T",
+                   help="random: number of pools (default: the fewest within --max-pool-size)")
+    p.add_argument("--seed", type=int, metavar="N", help="random: seed (reproducible layouts)")
+    p.add_argument("--optimize", action="store_true",
+                   help="dorfman: best pool size for --prevalence (and --assay)")
+    p.add_argument("--prevalence", type=_probability, metavar="P",
+                   help="with --optimize: the expected fraction of positive specimens")
+    p.add_argument("--assay", metavar="TOML",
+                   help="with --optimize: the assay (default: an error-free test, as Dorfman 1943)")
+    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    return p
+
+
+def _design_options(args) -> dict:
+    if args.scheme == "dorfman":
+        return {"pool_size": args.pool_size}
+    if args.scheme == "array":
+        return {"rows": args.rows, "cols": args.cols}
+    if args.scheme == "kautz-singleton":
+        return {"positives": args.positives, "q": args.q, "dimension": args.dimension,
+                "length": args.length}
+    return {"pools_per_sample": args.pools_per_sample, "pools": args.pools, "seed": args.seed}
+
+
+def _run_design(args):
+    from .design import make_design, optimal_dorfman
+    from .io import check_output_path, write_frame
+    if args.out:
+        check_output_path(args.out)
+    summary = {}
+    if args.optimize:
+        if args.scheme != "dorfman":
+            raise InputError("--optimize is for --scheme dorfman")
+        if args.prevalence is None:
+            raise InputError("--optimize needs --prevalence P")
+        assay = None
+        if args.assay:
+            from .assay import Assay
+            assay = Assay.read(args.assay)
+        opt = optimal_dorfman(args.prevalence, assay, args.max_pool_size)
+        summary["optimum"] = opt.to_dict()
+        summary["optimum"]["assay"] = assay.describe() if assay else "error-free"
+        if not args.json:
+            _print_optimum(opt, assay)
+        args.pool_size = opt.best.pool_size
+    elif args.prevalence is not None or args.assay:
+        raise InputError("--prevalence and --assay go with --optimize")
+    if args.samples is None or args.out is None:
+        if args.optimize and args.samples is None and args.out is None:
+            if args.json:
+                print(json.dumps(summary, indent=2))
+            return 0
+        raise InputError("give both --samples N|CSV and --out LAYOUT.csv")
+    design = make_design(args.scheme, args.samples, max_pool_size=args.max_pool_size,
+                         **_design_options(args))
+    write_frame(design.layout, args.out)
+    if args.json:
+        summary.update(design.properties.to_dict())
+        summary["out"] = args.out
+        print(json.dumps(summary, indent=2))
+    else:
+        print("\n".join(design.properties.lines()))
+        print(f"wrote {args.out}")
+    return 0
+
+
+def _print_optimum(opt, assay) -> None:
+    b = opt.best
+    source = ("Kim et al. 2007 closed forms" + (" with dilution" if
+              assay.sensitivity.model != "constant" else "")) if assay else \
+        "error-free test, Dorfman 1943"
+    print(f"Dorfman pooling at prevalence {b.prevalence:g} ({source})")
+    if not opt.saves:
+        print(f"  pooling saves nothing at this prevalence: test each specimen alone "
+              f"(pool sizes 2 to {opt.max_pool_size} all cost more)")
+    print(f"  best pool size: {b.pool_size}"
+          + (f" (the largest searched; allow larger pools with --max-pool-size)"
+             if opt.at_limit else ""))
+    print(f"  expected tests per specimen: {b.tests_per_sample:.4f} "
+          f"({100 * (1 - b.tests_per_sample):.1f}% fewer than one test each)")
+    print(f"  pooled sensitivity: {b.sensitivity:.4f}, pooled specificity: {b.specificity:.4f}")
+    t = opt.table.sort_values("tests_per_sample").head(5).sort_values("pool_size")
+    print("  nearby: " + ", ".join(f"k={int(r.pool_size)}: {r.tests_per_sample:.4f}"
+                                   for r in t.itertuples()))
+
+
+# ---- simulate
+def _add_simulate(sub):
+    from .defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
+    p = sub.add_parser("simulate", help="operating characteristics of a testing protocol by "
+                       "simulation", description="Simulate a testing protocol on invented cohorts "
+                       "with readouts drawn from the assay model (dilution included): tests, "
+                       "sensitivity, specificity, predictive values, rounds and draws per "
+                       "specimen with Monte Carlo standard errors. Comma-separated prevalences or "
+                       "pool sizes make a sweep. " + CAUTION)
+    p.add_argument("--scheme", required=True, metavar="SCHEME",
+                   help="protocol: individual, dorfman (classic two-stage) or array (rows, "
+                   "columns, then crossings)")
+    p.add_argument("--samples", required=True, metavar="N|CSV",
+                   help="specimens per cohort, or a samples file (its prior column is used)")
+    p.add_argument("--prevalence", type=_float_list, metavar="P[,P...]",
+                   help="prior of every specimen (without a prior in the samples file)")
+    p.add_argument("--assay", metavar="TOML",
+                   help="assay model that draws the readouts (default: constant Se 0.95, Sp 0.99)")
+    p.add_argument("--pool-size", type=_int_list, metavar="K[,K...]", help="dorfman: pool size")
+    p.add_argument("--rows", type=int, metavar="R", help="array: rows per grid (default 8)")
+    p.add_argument("--cols", type=int, metavar="C", help="array: columns per grid (default 12)")
+    p.add_argument("--max-pool-size", type=int, metavar="K", help="largest pool allowed")
+    p.add_argument("--negative-below", type=_probability, default=NEGATIVE_BELOW, metavar="LO",
+                   help="decoding protocols: call negative below LO (default: %(default)s)")
+    p.add_argument("--positive-above", type=_probability, default=POSITIVE_ABOVE, metavar="HI",
+                   help="decoding protocols: call positive above HI (default: %(default)s)")
+    p.add_argument("--runs", type=int, default=1000, metavar="R",
+                   help="simulated cohorts per setting (default: %(default)s)")
+    p.add_argument("--seed", type=int, metavar="S", help="random seed (reproducible results)")
+    p.add_argument("--out", metavar="CSV", help="also write the results table")
+    p.add_argument("--json", action="store_true", help="print the results as JSON")
+    return p
+
+
+def _run_simulate(args):
+    from .io import check_output_path, write_frame
+    from .simulate import simulate, sweep
+    from .simulate.protocols import protocol_class
+    if args.out:
+        check_output_path(args.out)
+    protocol_class(args.scheme)  # an unknown scheme fails before any file is read
+    assay = _read_assay_or_default(args)
+    options = {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
+               "negative_below": args.negative_below, "positive_above": args.positive_above}
+    prevs, sizes = args.prevalence, args.pool_size
+    progress = sys.stderr.isatty()
+    if (prevs is None or len(prevs) == 1) and (sizes is None or len(sizes) == 1):
+        sim = simulate(args.scheme, args.samples, prevs[0] if prevs else None, assay,
+                       runs=args.runs, seed=args.seed, progress=progress,
+                       pool_size=sizes[0] if sizes else None, **options)
+        table = sim.characteristics.table()
+        if args.out:
+            from .simulate.simulator import Sweep
+            write_frame(Sweep([sim]).table, args.out)
+        if args.json:
+            print(json.dumps(_json_ready(sim.to_dict()), indent=2))
+        else:
+            _print_simulation(sim, table)
+    else:
+        result = sweep(args.scheme, args.samples, prevs, sizes if sizes and len(sizes) > 1
+                       else None, assay, runs=args.runs, seed=args.seed, progress=progress,
+                       **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}), **options)
+        table = result.table
+        if args.out:
+            write_frame(table, args.out)
+        if args.json:
+            print(json.dumps(_json_ready({"points": result.to_dict()}), indent=2))
+        else:
+            _print_sweep(args, result, table)
+    if args.out and not args.json:
+        print(f"wrote {args.out}")
+    return 0
+
+
+def _json_ready(value):
+    """NaN and infinities have no JSON spelling: they become null."""
+    import math
+    if isinstance(value, dict):
+        return {k: _json_ready(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_json_ready(v) for v in value]
+    if hasattr(value, "item"):
+        value = value.item()
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+def _fmt(value, se=None, digits=4) -> str:
+    """A value to ``digits`` decimals, more when its standard error needs them (2 significant)."""
+    import math
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "n/a"
+    if se is not None and not (isinstance(se, float) and math.isnan(se)):
+        if se > 0:
+            digits = min(max(digits, 1 - math.floor(math.log10(se))), 8)
+        return f"{value:.{digits}f} ± {se:.{digits}f}"
+    return f"{value:.{digits}f}"
+
+
+LABELS = {"tests_per_sample": "tests per specimen", "sensitivity": "sensitivity",
+          "specificity": "specificity", "ppv": "positive predictive value",
+          "npv": "negative predictive value", "rounds": "rounds (turnaround)",
+          "draws_per_sample": "draws per specimen"}
+
+
+def _print_simulation(sim, table) -> None:
+    params = ", ".join(f"{k} {v}" for k, v in sim.parameters.items())
+    c = sim.characteristics
+    prev = f"prevalence {sim.prevalence:g}" if sim.prevalence is not None else "per-specimen priors"
+    print(f"{sim.scheme}" + (f" ({params})" if params else "") + f", {c.specimens} specimens, "
+          f"{prev}, {sim.assay.describe()}")
+    print(f"{c.runs} simulated runs (estimate ± Monte Carlo standard error)"
+          + (f"; closed form: {sim.expected['source']}" if sim.expected is not None else ""))
+    for row in table.itertuples():
+        shown = _fmt(row.estimate, row.mcse)
+        line = f"  {LABELS[row.characteristic]:<27} {shown:>20}"
+        if sim.expected is not None and row.characteristic in sim.expected:
+            decimals = len(shown.split(" ")[0].partition(".")[2]) or 4
+            line += f"   closed form {_fmt(sim.expected[row.characteristic], digits=decimals)}"
+        print(line)
+    print(f"  most draws from one specimen: {c.max_draws}")
+    for note in sim.notes:
+        print(f"  note: {note}")
+    print("  " + CAUTION)
+
+
+def _print_sweep(args, result, table) -> None:
+    first = result.results[0]
+    print(f"{first.scheme} sweep, {first.characteristics.specimens} specimens, "
+          f"{first.characteristics.runs} runs per setting, {first.assay.describe()}")
+    keys = [k for k in ("prevalence", "pool_size", "rows", "cols") if k in table.columns]
+    cols = ["tests_per_sample", "sensitivity", "specificity", "ppv", "npv", "rounds"]
+    head = [k.replace("_", " ") for k in keys] + ["tests/specimen", "sensitivity",
+                                                  "specificity", "PPV", "NPV", "rounds"]
+    rows = []
+    for r in table.to_dict("records"):
+        cells = [f"{r[k]:g}" for k in keys]
+        cells += [_fmt(r[c], r[f"{c}_se"], 3) for c in cols]
+        rows.append(cells)
+    widths = [max(len(h), *(len(row[i]) for row in rows)) for i, h in enumerate(head)]
+    print("  ".join(h.rjust(w) for h, w in zip(head, widths)))
+    for row in rows:
+        print("  ".join(c.rjust(w) for c, w in zip(row, widths)))
+    print("(estimate ± Monte Carlo standard error) " + CAUTION)
+
+
 COMMANDS = {
     "decode": (_add_decode, _run_decode),
     "demo": (_add_demo, _run_demo),
+    "design": (_add_design, _run_design),
+    "simulate": (_add_simulate, _run_simulate),
 }
 
 

@@ -61,3 +61,17 @@ class Protocol(ABC):
     @abstractmethod
     def run(self, tester: Tester, prior: np.ndarray) -> Outcome:
         """Test the cohort (prior: per-specimen prior probabilities) and return the calls."""
+
+    def parameters(self) -> dict:
+        """The protocol's settings, for reports and JSON (override to list them)."""
+        return {}
+
+    def expected(self, n: int, prevalence: float, assay: Assay) -> dict | None:
+        """Closed-form operating characteristics for ``n`` specimens at one prevalence, if known."""
+        return None
+
+
+def singles(indices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """CSR (ptr, members) of individual tests of the given specimens, one pool each."""
+    idx = np.asarray(indices, dtype=np.int64)
+    return np.arange(len(idx) + 1, dtype=np.int64), idx

@@ -1,0 +1,38 @@
+"""Non-adaptive pooling designs and Dorfman's closed forms.
+
+Each scheme is a function returning a :class:`Design` (``.layout`` the ``pool,sample`` table,
+``.properties`` its numbers): :func:`dorfman_design`, :func:`array_design`,
+:func:`kautz_singleton_design`, :func:`random_design`; :func:`make_design` picks one by name.
+"""
+from __future__ import annotations
+
+from .array import array_design
+from .base import Design, DesignProperties
+from .closed_form import (DorfmanExpectation, DorfmanOptimum, dorfman_cohort_expected,
+                          dorfman_expected,
+                          dorfman_tests_per_specimen, individual_expected, optimal_dorfman)
+from .disjunct import noiseless_decode, pool_results
+from .dorfman import dorfman_design
+from .kautz_singleton import kautz_singleton_design
+from .random_design import random_design
+from .specimens import Specimens, specimens
+
+SCHEMES = {
+    "dorfman": dorfman_design,
+    "array": array_design,
+    "kautz-singleton": kautz_singleton_design,
+    "random": random_design,
+}
+
+__all__ = ["Design", "DesignProperties", "SCHEMES", "make_design", "dorfman_design", "array_design",
+           "kautz_singleton_design", "random_design", "noiseless_decode", "pool_results",
+           "dorfman_expected", "dorfman_cohort_expected", "individual_expected", "dorfman_tests_per_specimen",
+           "optimal_dorfman", "DorfmanExpectation", "DorfmanOptimum", "Specimens", "specimens"]
+
+
+def make_design(scheme: str, samples, **options) -> Design:
+    """Build the named design; ``options`` are the scheme function's keyword arguments."""
+    from ..errors import InputError
+    if scheme not in SCHEMES:
+        raise InputError(f"unknown design scheme {scheme!r} (choose one of {', '.join(SCHEMES)})")
+    return SCHEMES[scheme](samples, **options)

@@ -1,0 +1,88 @@
+"""The specimens a design or a simulation is about: a count, or a samples file (with priors).
+
+``--samples N`` makes ``N`` specimens with IDs ``S0001``...; ``--samples FILE`` reads the samples file
+of interface.md (``sample`` column, optional ``prior``) and keeps its order, which designs follow when
+they fill pools and grids.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from ..errors import InputError
+from ..io import read_table
+
+
+@dataclass
+class Specimens:
+    """IDs in design order and, when the samples file gives them, per-specimen priors (NaN = none)."""
+
+    ids: np.ndarray
+    prior: np.ndarray | None = None
+    source: str | None = None
+
+    def __len__(self) -> int:
+        return len(self.ids)
+
+    def priors(self, prevalence: float) -> np.ndarray:
+        """Per-specimen prior: the file's value, else ``prevalence``."""
+        if self.prior is None:
+            return np.full(len(self.ids), float(prevalence))
+        return np.where(np.isnan(self.prior), float(prevalence), self.prior)
+
+
+def numbered(n: int) -> np.ndarray:
+    """IDs S0001..SN (zero-padded to at least four digits)."""
+    width = max(4, len(str(n)))
+    return np.array([f"S{i:0{width}d}" for i in range(1, n + 1)], dtype=object)
+
+
+def read_samples(path) -> Specimens:
+    """The samples file: ``sample`` (unique, non-empty) and optional ``prior`` in (0, 1)."""
+    table = read_table(path, ["sample"], "samples")
+    f = table.frame
+    if len(f) == 0:
+        raise InputError("samples file lists no specimen", str(path))
+    blank = np.flatnonzero((f["sample"] == "").to_numpy())
+    if len(blank):
+        raise table.error("empty sample ID", blank[0], "sample")
+    dup = f.duplicated(["sample"]).to_numpy()
+    if dup.any():
+        r = int(np.flatnonzero(dup)[0])
+        raise table.error(f"sample {f['sample'].iat[r]!r} is listed twice", r, "sample")
+    prior = None
+    if "prior" in f.columns:
+        raw = f["prior"].str.strip()
+        given = (raw != "").to_numpy()
+        vals = pd.to_numeric(raw.where(given, "nan"), errors="coerce").to_numpy(dtype=float)
+        bad = given & ~((vals > 0) & (vals < 1))
+        if bad.any():
+            r = int(np.flatnonzero(bad)[0])
+            raise table.error(f"prior {raw.iat[r]!r} must be a probability strictly between 0 "
+                              "and 1", r, "prior")
+        prior = vals
+    return Specimens(f["sample"].to_numpy(dtype=object), prior, str(path))
+
+
+def specimens(arg) -> Specimens:
+    """``N`` (a whole number) or the path of a samples file; an int is taken as a count."""
+    if isinstance(arg, Specimens):
+        return arg
+    if isinstance(arg, (int, np.integer)) and not isinstance(arg, bool):
+        if arg < 1:
+            raise InputError(f"--samples must be at least 1, got {arg}")
+        return Specimens(numbered(int(arg)))
+    if isinstance(arg, (list, tuple, np.ndarray, pd.Index)):
+        ids = np.asarray([str(a) for a in arg], dtype=object)
+        if len(ids) == 0:
+            raise InputError("no specimen given")
+        if len(set(ids.tolist())) != len(ids):
+            raise InputError("specimen IDs must be unique")
+        return Specimens(ids)
+    text = str(arg).strip()
+    if text.isdigit() and not Path(text).exists():
+        return specimens(int(text))
+    return read_samples(text)

@@ -1,0 +1,41 @@
+"""The registry of simulated testing protocols: scheme name -> "module:Class".
+
+Classes are imported only when asked for, so a protocol with heavy dependencies costs nothing until it
+is used. Adding a protocol is one line here. ``make_protocol(name, **options)`` passes a class only
+the options its constructor accepts, so the command line can hand every protocol the same set
+(``pool_size``, ``rows``, ``cols``, ``max_pool_size``, thresholds, ...) and a missing one is reported
+by the class that needs it.
+"""
+from __future__ import annotations
+
+import inspect
+from importlib import import_module
+
+from ...errors import InputError
+
+PROTOCOLS = {
+    "individual": "bayespool.simulate.protocols.individual:IndividualTesting",
+    "dorfman": "bayespool.simulate.protocols.dorfman:DorfmanTesting",
+    "array": "bayespool.simulate.protocols.array:ArrayTesting",
+}
+
+
+def protocol_class(name: str):
+    """The Protocol subclass registered under ``name``."""
+    if name not in PROTOCOLS:
+        raise InputError(f"unknown scheme {name!r} (choose one of {', '.join(PROTOCOLS)})")
+    module, _, attr = PROTOCOLS[name].partition(":")
+    return getattr(import_module(module), attr)
+
+
+def make_protocol(name: str, **options):
+    """An instance of the named protocol, built from the options its constructor takes."""
+    cls = protocol_class(name)
+    try:
+        params = inspect.signature(cls).parameters
+    except ValueError:  # no introspectable constructor: it takes no options
+        params = {}
+    takes_any = any(p.kind is inspect.Parameter.VAR_KEYWORD for p in params.values())
+    accepted = {k: v for k, v in options.items()
+                if (takes_any or k in params) and v is not None}
+    return cls(**accepted)
