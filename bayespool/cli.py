@@ -316,29 +316,41 @@ def _add_simulate(sub):
 
 
 def _run_simulate(args):
+    from .design.base import check_count
     from .io import check_output_path, write_frame
+    from .run import check_prevalence
     from .simulate import simulate, sweep
-    from .simulate.protocols import protocol_class
+    from .simulate.protocols import accepted_options, make_protocol
     if args.out:
         check_output_path(args.out)
-    protocol_class(args.scheme)  # an unknown scheme fails before any file is read
-    assay = _read_assay_or_default(args)
+    prevs, sizes = args.prevalence, args.pool_size
+    accepted = accepted_options(args.scheme)  # an unknown scheme fails here, before any work
+    for option, value in (("pool_size", sizes), ("rows", args.rows), ("cols", args.cols)):
+        if value is not None and accepted is not None and option not in accepted:
+            raise InputError(f"--{option.replace('_', '-')} does not apply to the "
+                             f"{args.scheme} scheme")
     options = {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
                "negative_below": args.negative_below, "positive_above": args.positive_above}
-    prevs, sizes = args.prevalence, args.pool_size
+    for k in sizes or [None]:
+        make_protocol(args.scheme, pool_size=k, **options)  # checks the options before any work
+    for p in prevs or []:
+        check_prevalence(p)
+    check_count(args.runs, "--runs")
+    from .design.specimens import specimens
+    args.samples = specimens(args.samples)
+    assay = _read_assay_or_default(args)
     progress = sys.stderr.isatty()
     if (prevs is None or len(prevs) == 1) and (sizes is None or len(sizes) == 1):
         sim = simulate(args.scheme, args.samples, prevs[0] if prevs else None, assay,
                        runs=args.runs, seed=args.seed, progress=progress,
                        pool_size=sizes[0] if sizes else None, **options)
-        table = sim.characteristics.table()
         if args.out:
             from .simulate.simulator import Sweep
             write_frame(Sweep([sim]).table, args.out)
         if args.json:
             print(json.dumps(_json_ready(sim.to_dict()), indent=2))
         else:
-            _print_simulation(sim, table)
+            _print_simulation(sim, sim.characteristics.table())
     else:
         result = sweep(args.scheme, args.samples, prevs, sizes if sizes and len(sizes) > 1
                        else None, assay, runs=args.runs, seed=args.seed, progress=progress,
@@ -349,7 +361,7 @@ def _run_simulate(args):
         if args.json:
             print(json.dumps(_json_ready({"points": result.to_dict()}), indent=2))
         else:
-            _print_sweep(args, result, table)
+            _print_sweep(result, table)
     if args.out and not args.json:
         print(f"wrote {args.out}")
     return 0
@@ -408,7 +420,7 @@ def _print_simulation(sim, table) -> None:
     print("  " + CAUTION)
 
 
-def _print_sweep(args, result, table) -> None:
+def _print_sweep(result, table) -> None:
     first = result.results[0]
     print(f"{first.scheme} sweep, {first.characteristics.specimens} specimens, "
           f"{first.characteristics.runs} runs per setting, {first.assay.describe()}")

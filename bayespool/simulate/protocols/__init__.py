@@ -28,14 +28,21 @@ def protocol_class(name: str):
     return getattr(import_module(module), attr)
 
 
-def make_protocol(name: str, **options):
-    """An instance of the named protocol, built from the options its constructor takes."""
+def accepted_options(name: str) -> set | None:
+    """Keyword options the named protocol's constructor takes (None: any)."""
     cls = protocol_class(name)
     try:
         params = inspect.signature(cls).parameters
     except ValueError:  # no introspectable constructor: it takes no options
-        params = {}
-    takes_any = any(p.kind is inspect.Parameter.VAR_KEYWORD for p in params.values())
-    accepted = {k: v for k, v in options.items()
-                if (takes_any or k in params) and v is not None}
-    return cls(**accepted)
+        return set()
+    if any(p.kind is inspect.Parameter.VAR_KEYWORD for p in params.values()):
+        return None
+    return set(params)
+
+
+def make_protocol(name: str, **options):
+    """An instance of the named protocol, built from the options its constructor takes."""
+    cls = protocol_class(name)
+    accepted = accepted_options(name)
+    return cls(**{k: v for k, v in options.items()
+                  if (accepted is None or k in accepted) and v is not None})
