@@ -238,7 +238,7 @@ def _run_design(args):
         summary["optimum"] = opt.to_dict()
         summary["optimum"]["assay"] = assay.describe() if assay else "error-free"
         if not args.json:
-            _print_optimum(opt, assay)
+            _print_optimum(opt, assay, args.max_pool_size is not None)
         args.pool_size = opt.best.pool_size
     elif args.prevalence is not None or args.assay:
         raise InputError("--prevalence and --assay go with --optimize")
@@ -261,7 +261,7 @@ def _run_design(args):
     return 0
 
 
-def _print_optimum(opt, assay) -> None:
+def _print_optimum(opt, assay, capped: bool) -> None:
     b = opt.best
     source = ("Kim et al. 2007 closed forms" + (" with dilution" if
               assay.sensitivity.model != "constant" else "")) if assay else \
@@ -270,9 +270,11 @@ def _print_optimum(opt, assay) -> None:
     if not opt.saves:
         print(f"  pooling saves nothing at this prevalence: test each specimen alone "
               f"(pool sizes 2 to {opt.max_pool_size} all cost more)")
-    print(f"  best pool size: {b.pool_size}"
-          + (f" (the largest searched; allow larger pools with --max-pool-size)"
-             if opt.at_limit else ""))
+    limit = ""
+    if opt.at_limit:
+        limit = (" (the --max-pool-size limit: larger pools would cost fewer tests)" if capped
+                 else " (the largest size searched: a larger --max-pool-size may do better)")
+    print(f"  best pool size: {b.pool_size}{limit}")
     print(f"  expected tests per specimen: {b.tests_per_sample:.4f} "
           f"({100 * (1 - b.tests_per_sample):.1f}% fewer than one test each)")
     print(f"  pooled sensitivity: {b.sensitivity:.4f}, pooled specificity: {b.specificity:.4f}")
@@ -307,6 +309,9 @@ def _add_simulate(sub):
                    help="decoding protocols: call negative below LO (default: %(default)s)")
     p.add_argument("--positive-above", type=_probability, default=POSITIVE_ABOVE, metavar="HI",
                    help="decoding protocols: call positive above HI (default: %(default)s)")
+    p.add_argument("--tests", type=int, metavar="N",
+                   help="decoding protocols: tests per round")
+    p.add_argument("--method", metavar="NAME", help="decoding protocols: decoder")
     p.add_argument("--runs", type=int, default=1000, metavar="R",
                    help="simulated cohorts per setting (default: %(default)s)")
     p.add_argument("--seed", type=int, metavar="S", help="random seed (reproducible results)")
@@ -325,12 +330,14 @@ def _run_simulate(args):
         check_output_path(args.out)
     prevs, sizes = args.prevalence, args.pool_size
     accepted = accepted_options(args.scheme)  # an unknown scheme fails here, before any work
-    for option, value in (("pool_size", sizes), ("rows", args.rows), ("cols", args.cols)):
+    for option, value in (("pool_size", sizes), ("rows", args.rows), ("cols", args.cols),
+                          ("tests", args.tests), ("method", args.method)):
         if value is not None and accepted is not None and option not in accepted:
             raise InputError(f"--{option.replace('_', '-')} does not apply to the "
                              f"{args.scheme} scheme")
     options = {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
-               "negative_below": args.negative_below, "positive_above": args.positive_above}
+               "negative_below": args.negative_below, "positive_above": args.positive_above,
+               "tests": args.tests, "method": args.method}
     for k in sizes or [None]:
         make_protocol(args.scheme, pool_size=k, **options)  # checks the options before any work
     for p in prevs or []:

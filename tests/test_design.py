@@ -84,6 +84,9 @@ def test_kautz_singleton_structure():
     sizes = design.pool_size
     assert sizes.max() - sizes.min() <= 1
     assert len(set(map(tuple, mat.T.tolist()))) == 40  # distinct codewords
+    ptr, pools = design.sample_pools()
+    for i in (0, 17, 39):
+        assert sorted(pools[ptr[i]:ptr[i + 1]].tolist()) == np.flatnonzero(mat[:, i]).tolist()
 
 
 def _subsets(n, d):

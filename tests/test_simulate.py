@@ -196,7 +196,7 @@ def test_sweep_over_prevalences_and_pool_sizes():
     again = sweep("dorfman", 200, prevalences=[0.01, 0.05], pool_sizes=[4, 8], assay=assay,
                   runs=50, seed=1)
     assert again.table.equals(table)
-    with pytest.raises(InputError, match="pool sizes"):
+    with pytest.raises(InputError, match="no pool size"):
         sweep("array", 96, prevalences=[0.01], pool_sizes=[4, 8], runs=5)
 
 
@@ -228,3 +228,17 @@ def test_a_protocol_written_against_the_interface_runs():
     assert isinstance(Everyone().run(protocol_module.Tester(np.zeros(3, bool), PERFECT,
                                                             np.random.default_rng(0)), None),
                       Outcome)
+
+
+def test_progress_bar_goes_to_stderr_only_when_asked(capsys):
+    simulate("dorfman", 100, 0.05, PERFECT, runs=20, seed=0, pool_size=5, progress=True)
+    shown = capsys.readouterr()
+    assert "/20 [" in shown.err and "run" in shown.err and shown.out == ""
+    simulate("dorfman", 100, 0.05, PERFECT, runs=20, seed=0, pool_size=5, progress=False)
+    assert capsys.readouterr().err == ""
+
+
+def test_simulate_command_shows_no_bar_when_stderr_is_not_a_terminal(cli):
+    r = cli("simulate", "--scheme", "individual", "--prevalence", 0.05, "--samples", 20,
+            "--runs", 20, "--seed", 0, "--json")
+    assert r.code == 0 and "it/s" not in r.err and "run/s" not in r.err

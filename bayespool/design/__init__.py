@@ -26,7 +26,8 @@ SCHEMES = {
 
 __all__ = ["Design", "DesignProperties", "SCHEMES", "make_design", "dorfman_design", "array_design",
            "kautz_singleton_design", "random_design", "noiseless_decode", "pool_results",
-           "dorfman_expected", "dorfman_cohort_expected", "individual_expected", "dorfman_tests_per_specimen",
+           "dorfman_expected", "dorfman_cohort_expected", "individual_expected",
+           "dorfman_tests_per_specimen",
            "optimal_dorfman", "DorfmanExpectation", "DorfmanOptimum", "Specimens", "specimens"]
 
 

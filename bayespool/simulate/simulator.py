@@ -21,7 +21,7 @@ from .characteristics import ORDER, OperatingCharacteristics, summarise_runs
 from ..design.specimens import specimens
 from .cohort import Cohort, blocks, make_cohort
 from .protocol import Protocol, Tester
-from .protocols import make_protocol
+from .protocols import accepted_options, make_protocol
 
 
 @dataclass
@@ -149,8 +149,10 @@ def sweep(scheme: str, samples, prevalences=None, pool_sizes=None, assay: Assay 
     prevs = [None] if prevalences is None else [check_prevalence(p) for p in prevalences]
     sizes = [options.pop("pool_size", None)] if pool_sizes is None else \
         [check_count(k, "--pool-size") for k in pool_sizes]
-    if pool_sizes is not None and scheme != "dorfman":
-        raise InputError(f"a sweep over pool sizes is for the dorfman scheme, not {scheme!r}")
+    if pool_sizes is not None:
+        accepted = accepted_options(scheme)
+        if accepted is not None and "pool_size" not in accepted:
+            raise InputError(f"the {scheme} scheme has no pool size to sweep over")
     spec = specimens(samples)
     if len(prevs) > 1 and spec.prior is not None and not np.isnan(spec.prior).any():
         raise InputError("every specimen has a prior in the samples file, so a sweep over "
