@@ -11,8 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import InputError
 from ..design.specimens import Specimens, specimens
+from ..errors import InputError
 from ..run import check_prevalence
 
 
