@@ -82,13 +82,15 @@ class DemoResult:
 
 
 def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> DemoResult:
-    """Write the invented inputs, decode them, and write the posterior into ``folder``."""
+    """Write the invented inputs, decode them, and write the posterior and its report into
+    ``folder``."""
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     layout, readouts, samples, truth = invented_run(seed)
     files = {"layout": folder / "layout.csv", "readouts": folder / "readouts.csv",
              "samples": folder / "samples.csv", "assay": folder / "assay.toml",
-             "truth": folder / "invented_truth.csv", "posterior": folder / "posterior.csv"}
+             "truth": folder / "invented_truth.csv", "posterior": folder / "posterior.csv",
+             "report": folder / "report.html"}
     write_frame(layout, files["layout"])
     write_frame(readouts, files["readouts"])
     write_frame(samples, files["samples"])
@@ -98,4 +100,9 @@ def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> De
     assay = Assay.read(files["assay"])
     posterior = decode(run, assay, method="auto")
     write_frame(posterior.to_frame(), files["posterior"])
+    from .report import write_report
+    write_report(files["report"], run=run, assay=assay, posterior=posterior,
+                 title="bayespool demo run (invented data)",
+                 notes=["All data of this run is invented for the demonstration; it is not real "
+                        "and checks nothing."])
     return DemoResult(folder, posterior, files, truth)

@@ -1,0 +1,93 @@
+"""The run report: one self-contained HTML page a laboratory can read at the bench and file.
+
+``write_report(path, run=..., assay=..., posterior=..., plan=..., calibration=...)`` renders
+whatever it is given: the caution banner always; the run summary (from ``run``); the assay model and
+its sensitivity curve (``assay``); the decoder, its convergence and diagnostics, the calls table, the
+plate map or ranked chart, the ambiguity groups and the number of positives (``posterior``); the
+planned next pools (``plan``, a DataFrame in the layout format plus the planner's columns); the
+calibration (``calibration``, a fit result with ``summary()`` and a ``cells`` DataFrame).
+
+The page loads nothing: CSS, the small sorting script and the figures (inline SVG, drawn with
+matplotlib on the Agg canvas) are in the file, and its Content-Security-Policy forbids any fetch.
+Every user-supplied string is escaped (:mod:`.escape`).
+"""
+from __future__ import annotations
+
+from datetime import datetime, timezone
+from pathlib import Path
+
+from .. import __version__
+
+__all__ = ["build_report", "write_report"]
+
+DEFAULT_TITLE = "bayespool run report"
+
+
+def build_report(run=None, assay=None, posterior=None, plan=None, calibration=None, title=None, *,
+                 created=None, notes=(), file_name=None) -> str:
+    """The report as an HTML string. ``created`` (datetime or text) defaults to now, in UTC;
+    ``notes`` are extra lines for the run summary (e.g. that the data is invented)."""
+    from .calibration import calibration_section, observed_points
+    from .calls import calls_section, map_section
+    from .groups import groups_section
+    from .page import page
+    from .planned import plan_section
+    from .positives import positives_section
+    from .summary import assay_section, decoder_section, run_section
+
+    if all(x is None for x in (run, assay, posterior, plan, calibration)):
+        raise ValueError("nothing to report: give at least one of run, assay, posterior, plan, "
+                         "calibration")
+    if run is not None and posterior is not None and posterior.n_samples != run.n_samples:
+        raise ValueError(f"the posterior has {posterior.n_samples} specimens but the run has "
+                         f"{run.n_samples}")
+    sections, toc = [], []
+
+    def add(sid, name, html):
+        if html:
+            sections.append(html)
+            toc.append((sid, name))
+
+    points, cells = observed_points(getattr(calibration, "cells", None)) \
+        if calibration is not None else (None, None)
+    if run is not None:
+        add("summary", "Run", run_section(run, posterior, notes))
+    if posterior is not None:
+        add("decoder", "Decoder", decoder_section(posterior))
+    if assay is not None:
+        add("assay", "Assay", assay_section(assay, run, points))
+    if posterior is not None:
+        add("calls", "Calls", calls_section(posterior, run))
+        mapped = map_section(posterior, run)
+        add("plate-map" if 'id="plate-map"' in mapped else "ranked",
+            "Plate map" if 'id="plate-map"' in mapped else "Ranked chart", mapped)
+        add("ambiguity", "Ambiguity", groups_section(posterior, run))
+        add("positives", "Positives", positives_section(posterior))
+    if plan is not None:
+        add("plan", "Next pools", plan_section(plan, posterior))
+    if calibration is not None:
+        add("calibration", "Calibration", calibration_section(calibration, cells))
+
+    if created is None:
+        created = datetime.now(timezone.utc)
+    when = created.strftime("%Y-%m-%d %H:%M UTC") if isinstance(created, datetime) else str(created)
+    meta = [f"Written {when} by bayespool {__version__}" +
+            (f" as {file_name}" if file_name else "")]
+    if posterior is not None:
+        c = posterior.counts()
+        meta.append(f"{posterior.n_samples} specimens: {c['positive']} positive, "
+                    f"{c['inconclusive']} inconclusive, {c['negative']} negative "
+                    f"(decoder: {posterior.method})")
+    footer = f"bayespool {__version__}. This file is self-contained and loads nothing."
+    return page(title or DEFAULT_TITLE, meta, toc, sections, footer)
+
+
+def write_report(path, run=None, assay=None, posterior=None, plan=None, calibration=None,
+                 title=None, **options) -> Path:
+    """Write the report to ``path`` atomically (see :func:`build_report` for ``options``)."""
+    from ..io import check_output_path, write_text
+    target = check_output_path(path)
+    html = build_report(run, assay, posterior, plan, calibration, title,
+                        file_name=options.pop("file_name", target.name), **options)
+    write_text(html, target)
+    return target

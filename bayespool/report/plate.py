@@ -1,0 +1,134 @@
+"""The plate map: each specimen in its well, coloured by its probability, the value printed in it.
+
+Drawn when the samples file has a ``well`` column (``plate`` too when there are several plates).
+Wells are a row letter and a column number (``A1``, ``B07``, ``P24``); a plate whose wells all fit
+8 x 12 is drawn as a 96-well plate, otherwise as a 384-well plate (16 x 24), the two standard
+microplate formats (ANSI/SLAS 1-2004 footprint, common practice). Specimens without a usable well
+are listed under the map; they are in the calls table like every other.
+"""
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+
+from . import formatting as fmt
+from .escape import text
+from .markup import el
+from .palette import style
+
+WELL = re.compile(r"^\s*([A-Za-z])\s*0*([1-9][0-9]?)\s*$")
+FORMATS = {96: (8, 12), 384: (16, 24)}
+MARKS = {"positive": "+", "inconclusive": "?", "negative": ""}
+
+
+def parse_well(value) -> tuple[int, int] | None:
+    """0-based (row, column) of a well name such as ``A1`` or ``h12``; None if it is not one."""
+    m = WELL.match(str(value))
+    if not m:
+        return None
+    return ord(m.group(1).upper()) - ord("A"), int(m.group(2)) - 1
+
+
+def plate_format(rows, cols) -> int | None:
+    """96 or 384 for the smallest standard plate holding wells at these 0-based rows and columns."""
+    for wells, (n_rows, n_cols) in FORMATS.items():
+        if max(rows) < n_rows and max(cols) < n_cols:
+            return wells
+    return None
+
+
+@dataclass
+class Plate:
+    name: str
+    wells: int
+    cells: dict = field(default_factory=dict)  # (row, col) -> specimen index
+
+
+@dataclass
+class Placement:
+    plates: list
+    unplaced: list  # (specimen index, reason)
+
+
+def place(samples, n_specimens: int) -> Placement | None:
+    """Put specimens on plates from the samples frame (index = specimen index); None without wells."""
+    if samples is None or "well" not in samples.columns:
+        return None
+    plate_col = samples["plate"] if "plate" in samples.columns else None
+    order, by_name, unplaced = [], {}, []
+    for idx, well in zip(samples.index, samples["well"]):
+        if not (0 <= int(idx) < n_specimens):
+            continue
+        pos = parse_well(well)
+        if pos is None:
+            unplaced.append((int(idx), "no well given" if str(well).strip() == ""
+                             else f"well {well!r} is not a row letter and column number"))
+            continue
+        if pos[0] >= FORMATS[384][0] or pos[1] >= FORMATS[384][1]:
+            unplaced.append((int(idx), f"well {well} is outside a 384-well plate"))
+            continue
+        name = "" if plate_col is None else str(plate_col.loc[idx])
+        if name not in by_name:
+            by_name[name] = {}
+            order.append(name)
+        cells = by_name[name]
+        if pos in cells:
+            unplaced.append((int(idx), f"well {well} is already taken"))
+            continue
+        cells[pos] = int(idx)
+    plates = [Plate(name, plate_format([r for r, _ in by_name[name]],
+                                       [c for _, c in by_name[name]]), by_name[name])
+              for name in order]
+    if not plates:
+        return None
+    return Placement(plates, unplaced)
+
+
+def plate_html(plate: Plate, sample_ids, probability, calls) -> str:
+    """One plate as a grid table; every well prints its probability and a mark for its call."""
+    n_rows, n_cols = FORMATS[plate.wells]
+    head = el("tr", el("th", "", class_="corner") +
+              "".join(el("th", str(c + 1), scope="col") for c in range(n_cols)))
+    body = []
+    for r in range(n_rows):
+        letter = chr(ord("A") + r)
+        cells = [el("th", letter, scope="row")]
+        for c in range(n_cols):
+            well = f"{letter}{c + 1}"
+            i = plate.cells.get((r, c))
+            if i is None:
+                cells.append(el("td", "", class_="well empty", title=f"{well}: no specimen"))
+                continue
+            p, call = float(probability[i]), str(calls[i])
+            tip = f"{sample_ids[i]} \u2014 well {well} \u2014 P(positive) {fmt.prob_long(p)} \u2014 {call}"
+            mark = MARKS.get(call, "")
+            content = el("span", text(fmt.prob_short(p)), class_="wp")
+            if mark:
+                content += el("span", mark, class_="wm", aria_hidden="true")
+            cells.append(el("td", content, class_=f"well call-{call}", style=style(p), title=tip,
+                            data_sample=sample_ids[i], data_value=fmt.exact(p)))
+        body.append(el("tr", "".join(cells)))
+    size = f"{plate.wells} wells, {n_rows} \u00d7 {n_cols}"
+    name = f"Plate {plate.name}" if plate.name else "Plate"
+    caption = el("caption", text(name) + " " + el("span", f"({size})", class_="muted"))
+    return el("table", caption + el("thead", head) + el("tbody", "".join(body)),
+              class_=f"plate p{plate.wells}", data_plate=plate.name)
+
+
+def plate_map(placement: Placement, sample_ids, probability, calls) -> str:
+    """Every plate, then the specimens that could not be placed."""
+    parts = [plate_html(p, sample_ids, probability, calls) for p in placement.plates]
+    if placement.unplaced:
+        items = "".join(el("li", el("span", text(sample_ids[i]), class_="id") + " \u2014 " +
+                           text(why) + f" (P = {text(fmt.prob_short(probability[i]))})")
+                        for i, why in placement.unplaced[:200])
+        more = len(placement.unplaced) - 200
+        tail = el("li", f"\u2026 and {more} more (see the calls table)") if more > 0 else ""
+        parts.append(el("div", el("p", f"{len(placement.unplaced)} specimen(s) not on the map:") +
+                        el("ul", items + tail), class_="unplaced"))
+    return "".join(parts)
+
+
+def n_placed(placement: Placement) -> int:
+    return int(sum(len(p.cells) for p in placement.plates))
+
