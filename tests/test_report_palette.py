@@ -99,3 +99,8 @@ def test_colour_strings():
     assert palette.colour(0.0) == palette.ANCHORS[0]
     assert palette.colour(1.0) == palette.ANCHORS[-1]
     assert palette.style(0.5).startswith("background:#")
+
+
+def test_vectorised_styles_equal_the_single_ones():
+    p = np.concatenate([np.linspace(0, 1, 301), [1e-12, 0.0051, 0.99, 0.9999999]])
+    assert palette.styles(p) == [palette.style(v) for v in p]

@@ -54,17 +54,16 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         add("summary", "Run", run_section(run, posterior, notes))
     if posterior is not None:
         add("decoder", "Decoder", decoder_section(posterior))
-    if assay is not None:
-        add("assay", "Assay", assay_section(assay, run, points))
-    if posterior is not None:
-        add("calls", "Calls", calls_section(posterior, run))
         mapped = map_section(posterior, run)
         add("plate-map" if 'id="plate-map"' in mapped else "ranked",
             "Plate map" if 'id="plate-map"' in mapped else "Ranked chart", mapped)
+        add("calls", "Calls", calls_section(posterior, run))
         add("ambiguity", "Ambiguity", groups_section(posterior, run))
         add("positives", "Positives", positives_section(posterior))
     if plan is not None:
         add("plan", "Next pools", plan_section(plan, posterior))
+    if assay is not None:
+        add("assay", "Assay", assay_section(assay, run, points))
     if calibration is not None:
         add("calibration", "Calibration", calibration_section(calibration, cells))
 

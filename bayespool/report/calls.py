@@ -10,10 +10,10 @@ import numpy as np
 import pandas as pd
 
 from . import formatting as fmt
-from .escape import text
+from .escape import attr, text
 from .legend import legend
 from .markup import el, section
-from .palette import style
+from .palette import styles
 from .plate import n_placed, place, plate_map
 from .ranked import ranked_chart
 
@@ -49,29 +49,32 @@ def calls_table(frame: pd.DataFrame) -> str:
                pd.api.types.is_bool_dtype(frame[c]) for c in cols}
     head = "".join(el("th", text(fmt.label(c)), scope="col", data_key=c,
                       data_type="num" if numeric[c] or c == "call" else "text") for c in cols)
+    order = display_order(frame)
+    shown = frame.iloc[order]
+    colours = styles(shown["probability"].to_numpy(float))
     rows = []
-    for i in display_order(frame):
+    for rec, colour_style in zip(shown.to_dict("records"), colours):
         cells = []
-        rec = frame.iloc[int(i)]
         for c in cols:
             v = rec[c]
             if c == "sample":
-                cells.append(el("th", el("span", text(v), class_="id"), scope="row"))
+                cells.append(f'<th scope="row"><span class="id">{text(v)}</span></th>')
             elif c == "probability":
-                p = float(v)
-                cells.append(el("td", text(fmt.prob_long(p)), class_="num prob",
-                                data_value=fmt.exact(p), style=style(p)))
+                cells.append(f'<td class="num prob" data-value="{fmt.exact(v)}" '
+                             f'style="{colour_style}">{text(fmt.prob_long(v))}</td>')
             elif c == "call":
-                cells.append(el("td", el("span", text(v), class_=f"call call-{v}"),
-                                data_sort=CALL_RANK.get(str(v), 1)))
+                cells.append(f'<td data-sort="{CALL_RANK.get(str(v), 1)}"><span class="call '
+                             f'call-{attr(v)}">{text(v)}</span></td>')
             elif numeric[c] and pd.notna(v):
-                cells.append(el("td", text(fmt.number(v)), class_="num", data_value=fmt.exact(v)))
+                cells.append(f'<td class="num" data-value="{fmt.exact(v)}">'
+                             f'{text(fmt.number(v))}</td>')
             elif pd.isna(v):
-                cells.append(el("td", "", class_="blank"))
+                cells.append('<td class="blank"></td>')
             else:
-                cells.append(el("td", text(v)))
-        rows.append(el("tr", "".join(cells), data_call=rec["call"], data_sample=rec["sample"]))
-    return el("table", el("thead", el("tr", head)) + el("tbody", "".join(rows)),
+                cells.append(f"<td>{text(v)}</td>")
+        rows.append(f'<tr data-call="{attr(rec["call"])}" data-sample="{attr(rec["sample"])}">'
+                    f'{"".join(cells)}</tr>')
+    return el("table", el("thead", el("tr", head)) + el("tbody", "\n".join(rows)),
               class_="data calls", id="calls-table")
 
 

@@ -17,8 +17,9 @@ _BIDI = re.compile(r"[\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069]")
 def text(value) -> str:
     """``value`` as HTML-safe text, usable as element content and as a quoted attribute value."""
     s = "" if value is None else str(value)
-    s = _CONTROL.sub("\ufffd", s)
-    s = _BIDI.sub(lambda m: f"[U+{ord(m.group()):04X}]", s)
+    if not (s.isascii() and s.isprintable()):  # the common case skips both substitutions
+        s = _CONTROL.sub("\ufffd", s)
+        s = _BIDI.sub(lambda m: f"[U+{ord(m.group()):04X}]", s)
     return html.escape(s, quote=True)
 
 

@@ -67,3 +67,13 @@ def ink(p) -> str:
 def style(p) -> str:
     """``background`` and ``color`` declarations for a cell showing probability ``p``."""
     return f"background:{colour(p)};color:{ink(p)}"
+
+
+def styles(probabilities) -> list:
+    """:func:`style` of every probability of an array (vectorised: one pass for a whole run)."""
+    rgb = rgb_at(position(probabilities)).reshape(-1, 3)
+    y = relative_luminance(rgb)
+    dark_text = (y + 0.05) / 0.05 >= 1.05 / (y + 0.05)   # contrast with black >= with white
+    codes = np.rint(rgb).astype(np.int64)
+    return [f"background:#{r:02x}{g:02x}{b:02x};color:{'#000000' if d else '#ffffff'}"
+            for (r, g, b), d in zip(codes.tolist(), dark_text.tolist())]

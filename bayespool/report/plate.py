@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from . import formatting as fmt
 from .escape import text
 from .markup import el
-from .palette import style
+from .palette import styles
 
 WELL = re.compile(r"^\s*([A-Za-z])\s*0*([1-9][0-9]?)\s*$")
 FORMATS = {96: (8, 12), 384: (16, 24)}
@@ -84,7 +84,7 @@ def place(samples, n_specimens: int) -> Placement | None:
     return Placement(plates, unplaced)
 
 
-def plate_html(plate: Plate, sample_ids, probability, calls) -> str:
+def plate_html(plate: Plate, sample_ids, probability, calls, colours) -> str:
     """One plate as a grid table; every well prints its probability and a mark for its call."""
     n_rows, n_cols = FORMATS[plate.wells]
     head = el("tr", el("th", "", class_="corner") +
@@ -105,7 +105,7 @@ def plate_html(plate: Plate, sample_ids, probability, calls) -> str:
             content = el("span", text(fmt.prob_short(p)), class_="wp")
             if mark:
                 content += el("span", mark, class_="wm", aria_hidden="true")
-            cells.append(el("td", content, class_=f"well call-{call}", style=style(p), title=tip,
+            cells.append(el("td", content, class_=f"well call-{call}", style=colours[i], title=tip,
                             data_sample=sample_ids[i], data_value=fmt.exact(p)))
         body.append(el("tr", "".join(cells)))
     size = f"{plate.wells} wells, {n_rows} \u00d7 {n_cols}"
@@ -117,7 +117,8 @@ def plate_html(plate: Plate, sample_ids, probability, calls) -> str:
 
 def plate_map(placement: Placement, sample_ids, probability, calls) -> str:
     """Every plate, then the specimens that could not be placed."""
-    parts = [plate_html(p, sample_ids, probability, calls) for p in placement.plates]
+    colours = styles(probability)
+    parts = [plate_html(p, sample_ids, probability, calls, colours) for p in placement.plates]
     if placement.unplaced:
         items = "".join(el("li", el("span", text(sample_ids[i]), class_="id") + " \u2014 " +
                            text(why) + f" (P = {text(fmt.prob_short(probability[i]))})")
