@@ -343,10 +343,11 @@ def test_calibration_cells_get_clopper_pearson_intervals_and_points():
     assert "41.2" in sec.text() and "r50" in sec.text()
     table = sec.find("table", class_="data cells")
     keys = [th.attrs["data-key"] for th in table.find("thead").find_all("th")]
-    assert keys[-2:] == ["observed_95_low", "observed_95_high"]
+    assert keys[-3:] == ["observed_rate", "observed_95_low", "observed_95_high"]
     from statsmodels.stats.proportion import proportion_confint  # reference (references.md)
     for tr, (_, row) in zip(table.find("tbody").find_all("tr"), cells.iterrows()):
         tds = tr.find_all("td")
+        assert float(tds[-3].attrs["data-value"]) == pytest.approx(row["detected"] / row["readouts"])
         lo, hi = proportion_confint(row["detected"], row["readouts"], alpha=0.05, method="beta")
         assert float(tds[-2].attrs["data-value"]) == pytest.approx(lo, abs=1e-9)
         assert float(tds[-1].attrs["data-value"]) == pytest.approx(hi, abs=1e-9)

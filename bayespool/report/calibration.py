@@ -59,6 +59,8 @@ def observed_points(cells: pd.DataFrame | None) -> tuple[pd.DataFrame | None, pd
         with np.errstate(invalid="ignore", divide="ignore"):
             rate = xx / nn
         low, high = clopper_pearson(xx, nn)
+        if obs is None:
+            shown["observed_rate"] = rate
         shown["observed_95_low"], shown["observed_95_high"] = low, high
     elif obs is not None:
         rate = pd.to_numeric(cells[obs], errors="coerce").to_numpy(float)

@@ -47,7 +47,7 @@ def sensitivity_curve(assay, pool_sizes=None, observed=None) -> str:
             sizes = sorted({e[0] for e in s.entries})
             for j, k in enumerate(sizes):
                 d = np.arange(1, k + 1)
-                colour = _hex(0.25 + 0.65 * j / max(len(sizes) - 1, 1))
+                colour = _hex(0.45 + 0.5 * j / max(len(sizes) - 1, 1))
                 ax.plot(k / d, s(np.full(k, k), d), "-", color=colour, lw=1.0, alpha=0.8)
                 entries = [e for e in s.entries if e[0] == k]
                 ax.plot([e[0] / e[1] for e in entries], [e[2] for e in entries], "o",
