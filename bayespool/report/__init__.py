@@ -51,9 +51,9 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     points, cells = observed_points(getattr(calibration, "cells", None)) \
         if calibration is not None else (None, None)
     if run is not None:
-        add("summary", "Run", run_section(run, posterior, notes))
+        add("summary", "Run", run_section(run, notes))
     if posterior is not None:
-        add("decoder", "Decoder", decoder_section(posterior))
+        add("decoder", "Decoder", decoder_section(posterior, run))
         mapped = map_section(posterior, run)
         add("plate-map" if 'id="plate-map"' in mapped else "ranked",
             "Plate map" if 'id="plate-map"' in mapped else "Ranked chart", mapped)

@@ -93,6 +93,9 @@ JS = r"""
       table.scrollIntoView();
     });
   });
+  window.addEventListener("beforeprint", function () {  // a filed copy shows everything
+    Array.prototype.forEach.call(document.querySelectorAll("details"), function (d) { d.open = true; });
+  });
   document.getElementById("calls-controls").hidden = false;
   window.addEventListener("hashchange", fromAddress);
   filter();

@@ -107,7 +107,6 @@ footer { border-top: 1px solid var(--rule); margin-top: 30px; padding-top: 10px;
   .scroll.tall { max-height: none; overflow: visible; border: 0; }
   table.data thead th { position: static; }
   tr, .plate, figure, .caution { break-inside: avoid; }
-  details > *:not(summary) { display: block; }
   * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
 }
 """

@@ -36,7 +36,7 @@ def _prior(prior: np.ndarray) -> str:
                 f"{fmt.number(float(np.median(prior)))})")
 
 
-def run_section(run, posterior=None, notes=()) -> str:
+def run_section(run, notes=()) -> str:
     """Specimens, pools, readouts, input files and notes."""
     read = (run.n_positive + run.n_negative) > 0
     in_read = np.zeros(run.n_samples, bool)
@@ -70,8 +70,6 @@ def run_section(run, posterior=None, notes=()) -> str:
             el("li", text(fmt.label(k)) + ": " + el("code", text(v))) for k, v in files.items()),
             class_="plain")))
     all_notes = list(notes) + list(run.notes or [])
-    if posterior is not None:
-        all_notes += [w for w in posterior.warnings if w not in all_notes]
     if all_notes:
         items.append(("Notes", el("ul", "".join(el("li", text(n)) for n in all_notes),
                                   class_="plain")))
@@ -133,7 +131,7 @@ def assay_section(assay, run=None, observed=None) -> str:
     return section("assay", "Assay model", body)
 
 
-def decoder_section(posterior) -> str:
+def decoder_section(posterior, run=None) -> str:
     """Decoder, thresholds, call counts, convergence and every diagnostic it reported."""
     c = posterior.counts()
     tiles = el("div", "".join(
@@ -158,9 +156,11 @@ def decoder_section(posterior) -> str:
     body = tiles + convergence_banner(diag) + facts(items)
     if diag:
         body += el("h3", "Diagnostics") + kv_table(diag)
-    if posterior.warnings:
+    shown = set(run.notes or []) if run is not None else set()  # already in the run summary
+    warnings = [w for w in posterior.warnings if w not in shown]
+    if warnings:
         body += el("div", el("p", "Warnings from the decoder:") + el(
-            "ul", "".join(el("li", text(w)) for w in posterior.warnings)), class_="warn")
+            "ul", "".join(el("li", text(w)) for w in warnings)), class_="warn")
     return section("decoder", "Decoder and convergence", body)
 
 
