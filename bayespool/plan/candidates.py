@@ -1,0 +1,121 @@
+"""Candidate next tests: the pools the greedy batch chooses among.
+
+Four kinds, each a plain way a laboratory follows up pooled results:
+- ``retest``: an undecided specimen tested alone;
+- ``pool``: undecided specimens of similar probability pooled together (sorted by probability, cut
+  into consecutive chunks for a ladder of pool sizes, so that information picks the size), across
+  the whole run and within each linked group of specimens;
+- ``split``: the undecided members of a pool that read positive, whole and in halves (binary
+  splitting, Hwang 1972, JASA 67);
+- ``replicate``: one more reading of an existing pool that has undecided members (the same mix, so
+  it draws no more specimen material).
+Identical member sets are kept once (the cheapest kind first). Pools are CSR arrays (ptr, members).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+KINDS = ("retest", "pool", "split", "replicate")
+RETEST, POOL, SPLIT, REPLICATE = range(4)
+LADDER = (2, 3, 4, 5, 6, 8, 10, 12, 14, 16, 20, 24, 28, 32, 40, 48, 64, 96, 128)
+
+
+@dataclass(frozen=True)
+class Candidates:
+    """Candidate pools as CSR, with their kind and the read pool they follow up (or -1)."""
+
+    ptr: np.ndarray        # int64 (n + 1,)
+    members: np.ndarray    # int64 specimen indices
+    kind: np.ndarray       # int8 codes into KINDS
+    source: np.ndarray     # int64 read pool a split or replicate follows up, else -1
+
+    def __len__(self) -> int:
+        return len(self.ptr) - 1
+
+    @property
+    def sizes(self) -> np.ndarray:
+        return np.diff(self.ptr)
+
+    def members_of(self, c: int) -> np.ndarray:
+        return self.members[self.ptr[c]:self.ptr[c + 1]]
+
+    def uses_material(self) -> np.ndarray:
+        """True where reading the candidate draws specimen material (all but replicates)."""
+        return self.kind != REPLICATE
+
+
+def pool_sizes(max_pool_size: int, allowed) -> list[int]:
+    """The ladder of pool sizes up to ``max_pool_size`` that the assay covers (``allowed[k]``)."""
+    sizes = [k for k in LADDER if k < max_pool_size] + [max_pool_size]
+    return [k for k in sizes if k >= 2 and k < len(allowed) and allowed[k]]
+
+
+def _chunks(order: np.ndarray, sizes, out: list, kind: int):
+    for k in sizes:
+        if k > len(order):
+            continue
+        for start in range(0, len(order) - k + 1, k):
+            out.append((kind, -1, order[start:start + k]))
+
+
+def generate(run, probability: np.ndarray, undecided: np.ndarray, comps, max_pool_size: int,
+             allowed: np.ndarray) -> Candidates:
+    """Candidates for the undecided specimens (indices) of ``run``; ``allowed[k]`` says whether the
+    assay covers pool size k."""
+    und = np.zeros(run.n_samples, dtype=bool)
+    und[undecided] = True
+    sizes = pool_sizes(max_pool_size, allowed)
+    items: list = []
+    # replicates of read pools with an undecided member
+    read = (run.n_positive + run.n_negative) > 0
+    for t in np.flatnonzero(read):
+        mem = run.members(t)
+        k = len(mem)
+        if k < len(allowed) and allowed[k] and und[mem].any():
+            items.append((REPLICATE, int(t), np.sort(mem.astype(np.int64))))
+    if allowed[1]:
+        for i in undecided:
+            items.append((RETEST, -1, np.array([i], dtype=np.int64)))
+    # splits of positive pools
+    for t in np.flatnonzero(run.n_positive > 0):
+        mem = run.members(t).astype(np.int64)
+        left = mem[und[mem]]
+        u = len(left)
+        if u >= 2:
+            if u < len(mem) and u <= max_pool_size:
+                items.append((SPLIT, int(t), left))
+            half = (u + 1) // 2
+            for part in (left[:half], left[half:]):
+                if 2 <= len(part) <= max_pool_size:
+                    items.append((SPLIT, int(t), part))
+    # probability-grouped pools: the whole run, then each linked group
+    order = undecided[np.argsort(probability[undecided], kind="stable")].astype(np.int64)
+    _chunks(order, sizes, items, POOL)
+    labels = comps.sample_label[order]
+    by_group = np.argsort(labels, kind="stable")
+    bounds = np.flatnonzero(np.diff(labels[by_group])) + 1
+    for part in np.split(order[by_group], bounds):
+        if 2 < len(part):
+            _chunks(part, [k for k in sizes if k < len(part)], items, POOL)
+            if len(part) <= max_pool_size and allowed[len(part)]:
+                items.append((POOL, -1, part))
+    # keep each member set once, the first (cheapest) kind
+    seen = set()
+    kind, source, chunks = [], [], []
+    for code, src, mem in items:
+        key = tuple(sorted(mem.tolist()))
+        if key in seen:
+            continue
+        seen.add(key)
+        kind.append(code)
+        source.append(src)
+        chunks.append(mem)
+    ptr = np.zeros(len(chunks) + 1, dtype=np.int64)
+    if chunks:
+        np.cumsum([len(c) for c in chunks], out=ptr[1:])
+        members = np.concatenate(chunks).astype(np.int64)
+    else:
+        members = np.zeros(0, dtype=np.int64)
+    return Candidates(ptr, members, np.array(kind, dtype=np.int8), np.array(source, dtype=np.int64))

@@ -1,0 +1,89 @@
+"""The result of planning: the next pools, what each is expected to tell, and how to fold them in."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from ..run import Run
+from .candidates import KINDS
+
+COLUMNS = ["pool", "sample", "kind", "positive_probability", "information_bits", "follows_pool"]
+
+
+@dataclass(eq=False)
+class Plan:
+    """The next batch of pools for a run.
+
+    ``pool_ptr``/``pool_members``: members (specimen indices of the run) of planned pool j are
+    ``pool_members[pool_ptr[j]:pool_ptr[j+1]]``. ``information`` is each pool's expected
+    information in bits given the pools planned before it; ``total_information`` the joint
+    information of the whole batch. ``kind`` is one of retest, pool, split, replicate;
+    ``follows`` the read pool a split or replicate follows up (or -1). ``decided`` is True when
+    every specimen was already decided, so nothing was planned.
+    """
+
+    sample_ids: np.ndarray
+    pool_ids: np.ndarray
+    pool_ptr: np.ndarray
+    pool_members: np.ndarray
+    kind: np.ndarray
+    follows: np.ndarray
+    positive_probability: np.ndarray
+    information: np.ndarray
+    total_information: float
+    undecided: int
+    decided: bool
+    existing_pool_ids: np.ndarray
+    stop: str = "full"
+    n_draws: int = 0
+    notes: list = field(default_factory=list)
+
+    @property
+    def n_tests(self) -> int:
+        return len(self.pool_ids)
+
+    @property
+    def pool_size(self) -> np.ndarray:
+        return np.diff(self.pool_ptr)
+
+    def members(self, j: int) -> np.ndarray:
+        return self.pool_members[self.pool_ptr[j]:self.pool_ptr[j + 1]]
+
+    def to_frame(self) -> pd.DataFrame:
+        """The layout of the planned pools (``pool, sample``) with per-pool columns."""
+        owner = np.repeat(np.arange(self.n_tests), self.pool_size)
+        follows = np.array([self.existing_pool_ids[t] if t >= 0 else "" for t in self.follows],
+                           dtype=object)
+        kinds = np.asarray(KINDS, dtype=object)[self.kind] if self.n_tests else np.zeros(0, object)
+        return pd.DataFrame({
+            "pool": self.pool_ids[owner], "sample": self.sample_ids[self.pool_members],
+            "kind": kinds[owner], "positive_probability": self.positive_probability[owner],
+            "information_bits": self.information[owner], "follows_pool": follows[owner]},
+            columns=COLUMNS)
+
+    def summary(self) -> dict:
+        kinds = {k: int(np.sum(self.kind == i)) for i, k in enumerate(KINDS)}
+        return {"tests": self.n_tests, "memberships": int(len(self.pool_members)),
+                "undecided": self.undecided, "decided": self.decided,
+                "information_bits": self.total_information,
+                "kinds": {k: v for k, v in kinds.items() if v}, "stop": self.stop,
+                "draws": self.n_draws, "notes": list(self.notes)}
+
+    def extend(self, run: Run, positive) -> Run:
+        """``run`` with the planned pools added and read once each (``positive``: bool per pool)."""
+        positive = np.asarray(positive, dtype=bool)
+        if len(positive) != self.n_tests:
+            raise ValueError(f"{len(positive)} readouts for {self.n_tests} planned pools")
+        old_owner = np.repeat(np.arange(run.n_pools), run.pool_size)
+        new_owner = run.n_pools + np.repeat(np.arange(self.n_tests), self.pool_size)
+        n_pools = run.n_pools + self.n_tests
+        out = Run.from_arrays(np.concatenate([old_owner, new_owner]),
+                              np.concatenate([run.pool_members, self.pool_members]),
+                              run.n_samples, n_pools, run.prior, sample_ids=run.sample_ids,
+                              pool_ids=np.concatenate([run.pool_ids, self.pool_ids]))
+        out.n_positive = np.concatenate([run.n_positive, positive.astype(np.int32)])
+        out.n_negative = np.concatenate([run.n_negative, (~positive).astype(np.int32)])
+        out.samples, out.sources, out.notes = run.samples, dict(run.sources), list(run.notes)
+        return out

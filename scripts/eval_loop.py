@@ -1,0 +1,122 @@
+"""Closed-loop evaluation of the Bayesian loop against classic Dorfman testing.
+
+Plays the ``bayes`` protocol on simulated cohorts and compares tests per specimen and expected
+errors (missed positives plus false positives) with the closed form for Dorfman at its best pool
+size (Kim, Hudgens, Dreyfuss, Westreich & Pilcher 2007, Biometrics 63(4), from memory; see
+references.md), and tests used with the counting bound n * H(p) (Aldridge, Johnson & Scarlett 2019).
+
+    python3 scripts/eval_loop.py --samples 600 --prevalence 0.02 --runs 100
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity  # noqa: E402
+from bayespool.simulate.protocol import Tester  # noqa: E402
+from bayespool.simulate.protocols.bayes import BayesianLoop  # noqa: E402
+
+
+def kim_dorfman(p: float, se: float, sp: float, k: int) -> dict:
+    """Dorfman with test error (Kim et al. 2007, from memory): per specimen."""
+    q = 1.0 - p
+    tests = 1.0 / k + se - (se + sp - 1.0) * q ** k if k > 1 else 1.0
+    sens = se * se if k > 1 else se
+    spec = 1.0 - (1.0 - sp) * (se - (se + sp - 1.0) * q ** (k - 1)) if k > 1 else sp
+    errors = p * (1.0 - sens) + q * (1.0 - spec)
+    return {"k": k, "tests": tests, "sensitivity": sens, "specificity": spec, "errors": errors}
+
+
+def best_dorfman(p, se, sp, kmax=64):
+    return min((kim_dorfman(p, se, sp, k) for k in range(2, kmax + 1)), key=lambda r: r["tests"])
+
+
+def entropy(p):
+    return -(p * math.log2(p) + (1 - p) * math.log2(1 - p))
+
+
+def evaluate(n, prevalence, assay, runs, seed, **options):
+    rng = np.random.default_rng(seed)
+    proto = BayesianLoop(**options)
+    tests = rounds = fn = fp = pos = neg = undecided = 0
+    start = time.perf_counter()
+    for r in range(runs):
+        truth = rng.random(n) < prevalence
+        tester = Tester(truth, assay, np.random.default_rng(rng.integers(2**63)))
+        out = proto.run(tester, np.full(n, prevalence))
+        tests += out.tests
+        rounds += out.rounds
+        fn += int(np.sum(truth & ~out.calls))
+        fp += int(np.sum(~truth & out.calls))
+        pos += int(truth.sum())
+        neg += int((~truth).sum())
+        undecided += proto.undecided_at_end
+        if sys.stderr.isatty():
+            print(f"\r  run {r + 1}/{runs}", end="", file=sys.stderr)
+    if sys.stderr.isatty():
+        print(file=sys.stderr)
+    total = n * runs
+    return {"tests_per_sample": tests / total, "rounds": rounds / runs,
+            "errors_per_sample": (fn + fp) / total, "missed": fn / runs, "false_positive": fp / runs,
+            "sensitivity": 1 - fn / max(pos, 1), "specificity": 1 - fp / max(neg, 1),
+            "undecided_per_run": undecided / runs,
+            "bound_ratio": tests / (total * entropy(prevalence)),
+            "seconds_per_run": (time.perf_counter() - start) / runs}
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--samples", type=int, default=600)
+    ap.add_argument("--prevalence", type=float, default=0.02)
+    ap.add_argument("--runs", type=int, default=100)
+    ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--se", type=float, default=0.95)
+    ap.add_argument("--sp", type=float, default=0.99)
+    ap.add_argument("--dilution", action="store_true",
+                   help="dilution assay se_max=SE, r50=20, slope=1.5 instead of constant")
+    ap.add_argument("--tests-per-round", type=int, default=None)
+    ap.add_argument("--max-pool-size", type=int, default=None)
+    ap.add_argument("--relative", type=float, default=None)
+    ap.add_argument("--json", action="store_true")
+    args = ap.parse_args(argv)
+    sens = (DilutionSensitivity(args.se, 20.0, 1.5) if args.dilution
+            else ConstantSensitivity(args.se))
+    assay = Assay(args.sp, sens)
+    loop = evaluate(args.samples, args.prevalence, assay, args.runs, args.seed,
+                    tests_per_round=args.tests_per_round, max_pool_size=args.max_pool_size,
+                    relative_information=args.relative)
+    dorf = best_dorfman(args.prevalence, args.se, args.sp)
+    result = {"samples": args.samples, "prevalence": args.prevalence, "runs": args.runs,
+              "assay": assay.describe(), "bayes": loop,
+              "dorfman_closed_form": dorf if not args.dilution else None}
+    if args.json:
+        print(json.dumps(result, indent=2))
+        return 0
+    print(f"{args.runs} cohorts of {args.samples} at prevalence {args.prevalence:g}, "
+          f"{assay.describe()}")
+    print(f"  bayes loop : {loop['tests_per_sample']:.4f} tests/specimen, "
+          f"{loop['errors_per_sample'] * args.samples:.3f} errors per cohort "
+          f"({loop['missed']:.3f} missed, {loop['false_positive']:.3f} false positive), "
+          f"{loop['rounds']:.1f} rounds, sens {loop['sensitivity']:.4f} spec "
+          f"{loop['specificity']:.5f}, "
+          f"{loop['undecided_per_run']:.2f} undecided at end, "
+          f"{loop['seconds_per_run']:.2f} s/cohort")
+    print(f"  tests / counting bound n*H(p): {loop['bound_ratio']:.3f}")
+    if not args.dilution:
+        print(f"  Dorfman k={dorf['k']} (Kim et al. 2007): {dorf['tests']:.4f} tests/specimen, "
+              f"{dorf['errors'] * args.samples:.3f} expected errors per cohort")
+        print(f"  ratios bayes/Dorfman: tests {loop['tests_per_sample'] / dorf['tests']:.3f}, "
+              f"errors {loop['errors_per_sample'] / dorf['errors']:.3f}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
