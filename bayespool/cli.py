@@ -447,11 +447,90 @@ def _print_sweep(result, table) -> None:
     print("(estimate ± Monte Carlo standard error) " + CAUTION)
 
 
+# ---- plan
+def _add_plan(sub):
+    from .defaults import METHODS
+    from .plan import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
+    p = sub.add_parser("plan", help="the next most informative pools for the undecided samples",
+                       description="Choose the next batch of pools by expected information gain "
+                       "about the undecided samples, given the readouts so far. An empty layout "
+                       "and readouts (header only) with a --samples list plan a first stage. "
+                       + CAUTION)
+    _add_run_inputs(p, readouts_required=False)
+    p.add_argument("--tests", type=int, required=True, metavar="N",
+                   help="batch size: at most N pools (one readout each)")
+    p.add_argument("--max-pool-size", type=int, default=DEFAULT_MAX_POOL_SIZE, metavar="K",
+                   help="at most K samples per pool (default: %(default)s)")
+    p.add_argument("--max-draws", type=int, default=None, metavar="N",
+                   help="a sample may be drawn at most N more times in this batch (specimen "
+                   "volume; a draws_left column of --samples sets it per sample); replicate "
+                   "readings of an existing pool draw nothing")
+    p.add_argument("--min-information", type=float, default=DEFAULT_MIN_INFORMATION,
+                   metavar="BITS", help="leave out tests expected to tell fewer bits "
+                   "(default: %(default)s)")
+    p.add_argument("--max-linked", type=int, default=DEFAULT_MAX_LINKED, metavar="N",
+                   help="at most N samples linked through shared pools after this batch, so the "
+                   "next decode stays exact (default: %(default)s)")
+    p.add_argument("--posterior-draws", type=int, default=DEFAULT_DRAWS, metavar="N",
+                   help="joint posterior draws that information is estimated over "
+                   "(default: %(default)s)")
+    p.add_argument("--method", choices=METHODS, default="auto", help="decoder (default: auto)")
+    p.add_argument("--out", required=True, metavar="CSV",
+                   help="next pools: pool,sample,kind,positive_probability,information_bits,"
+                   "follows_pool")
+    p.add_argument("--report", metavar="HTML",
+                   help="also write an offline HTML report with the planned pools")
+    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    return p
+
+
+def _run_plan(args):
+    from .decode import decode
+    from .io import check_output_path, write_frame
+    from .plan import plan
+    report = args.report
+    check_output_path(args.out)
+    if report:
+        check_output_path(report)
+    run, assay = _load_inputs(args)
+    if run.n_samples == 0:
+        raise InputError("no samples: the layout is empty and no --samples file lists any",
+                         args.layout)
+    post = decode(run, assay, method=args.method, negative_below=args.negative_below,
+                  positive_above=args.positive_above, seed=args.seed)
+    result = plan(run, assay, post, tests=args.tests, max_pool_size=args.max_pool_size,
+                  max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
+                  min_information=args.min_information, max_linked=args.max_linked)
+    frame = result.to_frame()
+    write_frame(frame, args.out)
+    if report:
+        from .report import write_report
+        write_report(report, run=run, assay=assay, posterior=post, plan=frame)
+    for w in post.warnings + result.notes:
+        _note(args, w)
+    if args.json:
+        summary = result.summary()
+        summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe()})
+        print(json.dumps(summary, indent=2))
+    elif result.decided:
+        print(f"every sample is decided ({run.n_samples} samples): no test to plan; wrote a "
+              f"header only to {args.out}")
+    else:
+        c = post.counts()
+        print(f"{run.n_samples} samples: {c['positive']} positive, {c['negative']} negative, "
+              f"{c['inconclusive']} undecided")
+        print(f"planned {result.n_tests} pools ({len(result.pool_members)} memberships), "
+              f"expected information {result.total_information:.2f} bits; wrote {args.out}"
+              + (f" and {report}" if report else ""))
+    return 0
+
+
 COMMANDS = {
     "decode": (_add_decode, _run_decode),
     "demo": (_add_demo, _run_demo),
     "design": (_add_design, _run_design),
     "simulate": (_add_simulate, _run_simulate),
+    "plan": (_add_plan, _run_plan),
 }
 
 

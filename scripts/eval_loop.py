@@ -47,6 +47,8 @@ def evaluate(n, prevalence, assay, runs, seed, **options):
     rng = np.random.default_rng(seed)
     proto = BayesianLoop(**options)
     tests = rounds = fn = fp = pos = neg = undecided = 0
+    expected_errors = 0.0
+    per_run_errors = []
     start = time.perf_counter()
     for r in range(runs):
         truth = rng.random(n) < prevalence
@@ -59,13 +61,19 @@ def evaluate(n, prevalence, assay, runs, seed, **options):
         pos += int(truth.sum())
         neg += int((~truth).sum())
         undecided += proto.undecided_at_end
+        prob = proto.last_posterior.probability
+        expected_errors += float(np.sum(np.where(out.calls, 1.0 - prob, prob)))
+        per_run_errors.append(int(np.sum(truth != out.calls)))
         if sys.stderr.isatty():
             print(f"\r  run {r + 1}/{runs}", end="", file=sys.stderr)
     if sys.stderr.isatty():
         print(file=sys.stderr)
     total = n * runs
     return {"tests_per_sample": tests / total, "rounds": rounds / runs,
-            "errors_per_sample": (fn + fp) / total, "missed": fn / runs, "false_positive": fp / runs,
+            "errors_per_sample": (fn + fp) / total,
+            "errors_per_sample_se": float(np.std(per_run_errors, ddof=1) / math.sqrt(runs) / n)
+            if runs > 1 else float("nan"),
+            "posterior_expected_errors_per_sample": expected_errors / total, "missed": fn / runs, "false_positive": fp / runs,
             "sensitivity": 1 - fn / max(pos, 1), "specificity": 1 - fp / max(neg, 1),
             "undecided_per_run": undecided / runs,
             "bound_ratio": tests / (total * entropy(prevalence)),
@@ -104,7 +112,9 @@ def main(argv=None):
           f"{assay.describe()}")
     print(f"  bayes loop : {loop['tests_per_sample']:.4f} tests/specimen, "
           f"{loop['errors_per_sample'] * args.samples:.3f} errors per cohort "
-          f"({loop['missed']:.3f} missed, {loop['false_positive']:.3f} false positive), "
+          f"(+- {loop['errors_per_sample_se'] * args.samples:.3f}; {loop['missed']:.3f} missed, "
+          f"{loop['false_positive']:.3f} false positive; posterior-expected "
+          f"{loop['posterior_expected_errors_per_sample'] * args.samples:.3f}), "
           f"{loop['rounds']:.1f} rounds, sens {loop['sensitivity']:.4f} spec "
           f"{loop['specificity']:.5f}, "
           f"{loop['undecided_per_run']:.2f} undecided at end, "

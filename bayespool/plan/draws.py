@@ -15,8 +15,8 @@ import numpy as np
 from ..decode.exact import EXACT_LIMIT
 from ..decode.exact_sample import sample_exact
 from ..decode.graph import components
+from . import DEFAULT_DRAWS
 
-DEFAULT_DRAWS = 1000
 SAMPLE_LIMIT = EXACT_LIMIT  # largest component drawn exactly
 
 

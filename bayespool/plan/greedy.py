@@ -111,7 +111,7 @@ class _Groups:
 
 def select_batch(xt, w, cands, label, comp_size, qtab, n_tests: int, draws_left: np.ndarray,
                  max_linked: int, min_information: float = 0.0,
-                 relative_information: float = 0.0) -> Batch:
+                 relative_information: float = 0.0, replicates_use_material: bool = False) -> Batch:
     """Pick up to ``n_tests`` candidates greedily by conditional information.
 
     ``xt`` specimens x draws (uint8), ``w`` draw weights, ``label``/``comp_size`` the decoding
@@ -122,7 +122,7 @@ def select_batch(xt, w, cands, label, comp_size, qtab, n_tests: int, draws_left:
     n_draws = xt.shape[1]
     p0, g0 = single_information(xt, w, cands.ptr, cands.members, qtab)
     linked = linked_sizes(cands.ptr, cands.members, label, comp_size)
-    material = cands.uses_material()
+    material = cands.uses_material() | replicates_use_material
     ok = (g0 > _EPS) & (linked <= max_linked)
     heap = [(-float(g0[c]), int(c)) for c in np.flatnonzero(ok)]
     heapq.heapify(heap)

@@ -74,7 +74,8 @@ class BayesianLoop(Protocol):
             nxt = plan(run, tester.assay, post, tests=self.tests_per_round,
                        max_pool_size=self.max_pool_size, max_draws=left,
                        n_draws=self.n_draws, seed=rng, min_information=0.0,
-                       relative_information=self.relative_information)
+                       relative_information=self.relative_information,
+                       replicates_use_material=True)  # the Tester counts every reading
             if nxt.n_tests == 0:
                 break
             results = tester.read_round(nxt.pool_ptr, nxt.pool_members)
