@@ -39,6 +39,51 @@ def best_dorfman(p, se, sp, kmax=64):
     return min((kim_dorfman(p, se, sp, k) for k in range(2, kmax + 1)), key=lambda r: r["tests"])
 
 
+def dorfman_with_assay(p: float, assay, k: int) -> dict:
+    """Dorfman's closed form for any Se(k, d): sum over the binomial count of the other members'
+    positives (reduces to Kim et al. 2007 for a constant assay)."""
+    from scipy.stats import binom
+    j = np.arange(k)
+    others = binom.pmf(j, k - 1, p)
+    q_pool = assay.positive_probability(np.full(k, k), j)        # pool reading, i negative
+    q_pos = assay.positive_probability(np.full(k, k), j + 1)     # pool reading, i positive
+    alone = float(assay.positive_probability(np.array([1]), np.array([1]))[0])
+    sp1 = assay.specificity
+    d = np.arange(k + 1)
+    p_pool = float(np.sum(binom.pmf(d, k, p) * assay.positive_probability(np.full(k + 1, k), d)))
+    sens = alone * float(np.sum(others * q_pos))
+    spec = 1.0 - (1.0 - sp1) * float(np.sum(others * q_pool))
+    return {"k": k, "tests": 1.0 / k + p_pool, "sensitivity": sens, "specificity": spec,
+            "errors": p * (1 - sens) + (1 - p) * (1 - spec)}
+
+
+def best_dorfman_assay(p, assay, kmax=64):
+    return min((dorfman_with_assay(p, assay, k) for k in range(2, kmax + 1)),
+               key=lambda r: r["tests"])
+
+
+def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05)):
+    """Markdown rows: individual and Dorfman (closed forms) and the Bayesian loop (simulated)."""
+    assays = {"constant": Assay(0.99, ConstantSensitivity(0.95)),
+              "dilution": Assay(0.99, DilutionSensitivity(0.95, 40.0, 1.5))}
+    rows = ["| assay | prevalence | scheme | tests per specimen | sensitivity | specificity |",
+            "| --- | --- | --- | --- | --- | --- |"]
+    for name, assay in assays.items():
+        for p in prevalences:
+            se1 = float(assay.positive_probability(np.array([1]), np.array([1]))[0])
+            rows.append(f"| {name} | {p:g} | individual | 1 | {se1:.4f} | {assay.specificity:.4f} |")
+            dorf = best_dorfman_assay(p, assay)
+            rows.append(f"| {name} | {p:g} | Dorfman k={dorf['k']} (closed form) | "
+                        f"{dorf['tests']:.4f} | {dorf['sensitivity']:.4f} | "
+                        f"{dorf['specificity']:.4f} |")
+            loop = evaluate(n, p, assay, runs, seed)
+            rows.append(f"| {name} | {p:g} | Bayesian loop ({runs} cohorts of {n}) | "
+                        f"{loop['tests_per_sample']:.4f} | {loop['sensitivity']:.4f} | "
+                        f"{loop['specificity']:.5f} |")
+            print(rows[-1], file=sys.stderr, flush=True)
+    return "\n".join(rows)
+
+
 def entropy(p):
     return -(p * math.log2(p) + (1 - p) * math.log2(1 - p))
 
@@ -89,22 +134,28 @@ def main(argv=None):
     ap.add_argument("--se", type=float, default=0.95)
     ap.add_argument("--sp", type=float, default=0.99)
     ap.add_argument("--dilution", action="store_true",
-                   help="dilution assay se_max=SE, r50=20, slope=1.5 instead of constant")
+                   help="dilution assay se_max=SE, r50=40, slope=1.5 instead of constant")
     ap.add_argument("--tests-per-round", type=int, default=None)
     ap.add_argument("--max-pool-size", type=int, default=None)
     ap.add_argument("--relative", type=float, default=None)
     ap.add_argument("--json", action="store_true")
+    ap.add_argument("--table", action="store_true",
+                    help="print the README table (prevalence 0.5%%, 1%%, 2%%, 5%%; constant and "
+                    "dilution assay)")
     args = ap.parse_args(argv)
-    sens = (DilutionSensitivity(args.se, 20.0, 1.5) if args.dilution
+    if args.table:
+        print(table(args.samples, args.runs, args.seed))
+        return 0
+    sens = (DilutionSensitivity(args.se, 40.0, 1.5) if args.dilution
             else ConstantSensitivity(args.se))
     assay = Assay(args.sp, sens)
     loop = evaluate(args.samples, args.prevalence, assay, args.runs, args.seed,
                     tests_per_round=args.tests_per_round, max_pool_size=args.max_pool_size,
                     relative_information=args.relative)
-    dorf = best_dorfman(args.prevalence, args.se, args.sp)
+    dorf = best_dorfman_assay(args.prevalence, assay)
     result = {"samples": args.samples, "prevalence": args.prevalence, "runs": args.runs,
               "assay": assay.describe(), "bayes": loop,
-              "dorfman_closed_form": dorf if not args.dilution else None}
+              "dorfman_closed_form": dorf}
     if args.json:
         print(json.dumps(result, indent=2))
         return 0
@@ -120,11 +171,12 @@ def main(argv=None):
           f"{loop['undecided_per_run']:.2f} undecided at end, "
           f"{loop['seconds_per_run']:.2f} s/cohort")
     print(f"  tests / counting bound n*H(p): {loop['bound_ratio']:.3f}")
-    if not args.dilution:
-        print(f"  Dorfman k={dorf['k']} (Kim et al. 2007): {dorf['tests']:.4f} tests/specimen, "
-              f"{dorf['errors'] * args.samples:.3f} expected errors per cohort")
-        print(f"  ratios bayes/Dorfman: tests {loop['tests_per_sample'] / dorf['tests']:.3f}, "
-              f"errors {loop['errors_per_sample'] / dorf['errors']:.3f}")
+    print(f"  Dorfman k={dorf['k']} (closed form, Kim et al. 2007 for a constant assay): "
+          f"{dorf['tests']:.4f} tests/specimen, {dorf['errors'] * args.samples:.3f} expected "
+          f"errors per cohort")
+    print(f"  ratios bayes/Dorfman: tests {loop['tests_per_sample'] / dorf['tests']:.3f}, "
+          f"errors {loop['errors_per_sample'] / dorf['errors']:.3f} (posterior-expected "
+          f"{loop['posterior_expected_errors_per_sample'] / dorf['errors']:.3f})")
     return 0
 
 

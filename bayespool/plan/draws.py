@@ -46,10 +46,10 @@ def posterior_draws(run, assay, posterior, n_draws: int = DEFAULT_DRAWS, rng=Non
     if len(too_big) and notes is not None:
         notes.append(f"{len(too_big)} linked group(s) above {SAMPLE_LIMIT} specimens drawn from "
                      "their marginals (joint structure ignored there)")
-    out = (rng.random((n, n_draws)) < prob[:, None]).astype(np.uint8)
+    out = (rng.random((n, n_draws), dtype=np.float32) < prob[:, None]).astype(np.uint8)
     if len(joint):
         lik_ptr, loglik = run.log_likelihood(assay)
         exact = sample_exact(run, lik_ptr, loglik, comps, joint, n_draws, rng)
         rows = np.concatenate([comps.samples_of(int(c)) for c in joint])
         out[rows] = exact[rows]
-    return np.ascontiguousarray(out.T)
+    return out.T  # draws x specimens, a view of the specimen-major array the planner reads

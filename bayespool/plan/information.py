@@ -52,33 +52,50 @@ def _xlog2x(a):
 
 
 @njit(cache=True)
-def readout_probabilities(xt, members, qtab, out):
-    """out[r] = P(positive readout | x_r) for the pool of ``members`` under each draw r."""
+def positive_counts(xt, members, counts):
+    """counts[r] = number of positive members of the pool under draw r."""
+    counts[:] = 0
     n_draws = xt.shape[1]
-    k = len(members)
-    counts = np.zeros(n_draws, dtype=np.int64)
-    for a in range(k):
+    for a in range(len(members)):
         row = members[a]
         for r in range(n_draws):
             counts[r] += xt[row, r]
-    for r in range(n_draws):
+
+
+@njit(cache=True)
+def readout_probabilities(xt, members, qtab, out):
+    """out[r] = P(positive readout | x_r) for the pool of ``members`` under each draw r."""
+    counts = np.empty(xt.shape[1], dtype=np.int32)
+    positive_counts(xt, members, counts)
+    k = len(members)
+    for r in range(len(out)):
         out[r] = qtab[k, counts[r]]
 
 
 @njit(cache=True)
 def single_information(xt, w, ptr, members, qtab):
-    """(P(positive), information bits) of each candidate pool read once, with nothing else known."""
+    """(P(positive), information bits) of each candidate pool read once, with nothing else known.
+
+    The readout probability depends on a draw only through its count of positive members, so the
+    draws are first binned by that count (weights summed), then H2 is taken once per count.
+    """
     n_cand = len(ptr) - 1
     p_pos = np.zeros(n_cand)
     info = np.zeros(n_cand)
-    q = np.empty(xt.shape[1])
+    counts = np.empty(xt.shape[1], dtype=np.int32)
+    hist = np.zeros(qtab.shape[0])
     for c in range(n_cand):
-        readout_probabilities(xt, members[ptr[c]:ptr[c + 1]], qtab, q)
+        k = ptr[c + 1] - ptr[c]
+        positive_counts(xt, members[ptr[c]:ptr[c + 1]], counts)
+        hist[:k + 1] = 0.0
+        for r in range(len(counts)):
+            hist[counts[r]] += w[r]
         mean = 0.0
         cond = 0.0
-        for r in range(len(q)):
-            mean += w[r] * q[r]
-            cond += w[r] * binary_entropy(q[r])
+        for d in range(k + 1):
+            if hist[d] > 0.0:
+                mean += hist[d] * qtab[k, d]
+                cond += hist[d] * binary_entropy(qtab[k, d])
         p_pos[c] = mean
         info[c] = binary_entropy(mean) - cond
     return p_pos, info
