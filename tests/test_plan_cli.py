@@ -86,3 +86,16 @@ def test_bad_input_is_one_line_exit_2_and_no_output(cli, tmp_path):
     assert r.code == 2 and out.read_text() == "keep me\n"
     r = cli("plan", "--layout", lay, "--samples", sm, "--out", out)
     assert r.code == 2 and "--tests" in r.err
+
+
+def test_report_option_follows_the_report_module(cli, tmp_path):
+    from importlib.util import find_spec
+    lay, rd, sm = first_stage_files(tmp_path)
+    out, html = tmp_path / "next.csv", tmp_path / "plan.html"
+    r = cli("plan", "--layout", lay, "--readouts", rd, "--samples", sm, "--tests", 2,
+            "--out", out, "--report", html)
+    if find_spec("bayespool.report") is None:
+        assert r.code == 2 and "--report" in r.err and not out.exists()
+    else:
+        assert r.code == 0, r.err
+        assert out.exists() and html.exists()

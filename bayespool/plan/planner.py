@@ -73,7 +73,7 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
     tests = _whole(tests, "--tests", 1)
     max_pool_size = _whole(max_pool_size, "--max-pool-size", 1)
     max_linked = _whole(max_linked, "max_linked", 1)
-    n_draws = _whole(n_draws, "--draws", 10)
+    n_draws = _whole(n_draws, "--posterior-draws", 10)
     for value, name in ((min_information, "--min-information"),
                         (relative_information, "relative_information")):
         if not (isinstance(value, (int, float)) and math.isfinite(value) and value >= 0):
