@@ -150,7 +150,7 @@ def main(argv=None):
             else ConstantSensitivity(args.se))
     assay = Assay(args.sp, sens)
     loop = evaluate(args.samples, args.prevalence, assay, args.runs, args.seed,
-                    tests_per_round=args.tests_per_round, max_pool_size=args.max_pool_size,
+                    tests=args.tests_per_round, max_pool_size=args.max_pool_size,
                     relative_information=args.relative)
     dorf = best_dorfman_assay(args.prevalence, assay)
     result = {"samples": args.samples, "prevalence": args.prevalence, "runs": args.runs,

@@ -195,3 +195,12 @@ def test_bad_options_are_input_errors():
         plan(run, NOISY, tests=3, max_pool_size=0)
     with pytest.raises(InputError, match="max_draws"):
         plan(run, NOISY, tests=3, max_draws=[1, 2])
+
+
+def test_untested_specimens_are_never_decided_by_their_prior():
+    # prevalence 0.5% is below the negative threshold 0.01, yet nobody has been tested
+    samples = pd.DataFrame({"sample": [f"S{i}" for i in range(64)]})
+    run = Run.from_frames(pd.DataFrame({"pool": [], "sample": []}), None, samples, 0.005)
+    result = plan(run, NOISY, tests=8, seed=0)
+    assert not result.decided and result.undecided == 64
+    assert len(np.unique(result.pool_members)) == 64

@@ -39,7 +39,7 @@ def test_noiseless_loop_decides_everyone_correctly(seed):
     n = 48
     truth = rng.random(n) < 0.08
     perfect = Assay(1.0, ConstantSensitivity(1.0))
-    proto = BayesianLoop(tests_per_round=12, max_pool_size=8, n_draws=400, seed=seed)
+    proto = BayesianLoop(tests=12, max_pool_size=8, n_draws=400, seed=seed)
     out = proto.run(CohortTester(truth, perfect, rng), np.full(n, 0.08))
     assert proto.undecided_at_end == 0
     assert np.array_equal(out.calls, truth)
@@ -76,7 +76,7 @@ def test_loop_respects_a_total_material_limit():
     n = 64
     truth = rng.random(n) < 0.1
     assay = Assay(0.99, ConstantSensitivity(0.95))
-    proto = BayesianLoop(tests_per_round=16, max_draws=3, n_draws=300, seed=1)
+    proto = BayesianLoop(tests=16, max_draws=3, n_draws=300, seed=1)
     tester = CohortTester(truth, assay, rng)
     proto.run(tester, np.full(n, 0.1))
     assert tester.draws.max() <= 3

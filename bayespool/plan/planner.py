@@ -51,6 +51,12 @@ def _draws_left(run, max_draws) -> np.ndarray:
     return left
 
 
+def untested(run) -> np.ndarray:
+    """True for specimens in no read pool: a prior alone never decides a specimen, however low."""
+    read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
+    return np.bincount(run.pool_members[read], minlength=run.n_samples) == 0
+
+
 def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
          max_pool_size: int = DEFAULT_MAX_POOL_SIZE, max_draws=None,
          negative_below: float | None = None, positive_above: float | None = None,
@@ -59,6 +65,9 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
          draws: np.ndarray | None = None, id_prefix: str = "B",
          replicates_use_material: bool = False) -> Plan:
     """Plan up to ``tests`` pools of at most ``max_pool_size`` undecided specimens.
+
+    Undecided: probability between the thresholds, or in no read pool yet (so a first stage at a
+    prevalence below ``negative_below`` still tests everyone).
 
     ``posterior``: the run's decoded posterior (decoded here with ``method`` when None).
     ``max_draws``: how many more times a specimen may be drawn in this batch (specimen volume), one
@@ -94,7 +103,7 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
         if (lo, hi) != (posterior.negative_below, posterior.positive_above):
             posterior = dataclasses.replace(posterior, negative_below=lo, positive_above=hi)
     prob = np.asarray(posterior.probability, dtype=float)
-    undecided = np.flatnonzero(call_codes(prob, lo, hi) == 1)
+    undecided = np.flatnonzero((call_codes(prob, lo, hi) == 1) | untested(run))
     notes: list = []
     kmax = max(max_pool_size, int(run.pool_size.max()) if run.n_pools else 1)
     qtab = readout_table(assay, kmax)

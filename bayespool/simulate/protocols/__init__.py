@@ -17,6 +17,7 @@ PROTOCOLS = {
     "individual": "bayespool.simulate.protocols.individual:IndividualTesting",
     "dorfman": "bayespool.simulate.protocols.dorfman:DorfmanTesting",
     "array": "bayespool.simulate.protocols.array:ArrayTesting",
+    "bayes": "bayespool.simulate.protocols.bayes:BayesianLoop",
 }
 
 

@@ -3,8 +3,8 @@
 Each round decodes every readout so far (:func:`bayespool.decode.decode`), plans a batch by expected
 information gain (:func:`bayespool.plan.plan`), and reads it through the :class:`Tester`; the loop
 stops when every specimen is decided (probability below the negative threshold or above the positive
-one) or when no test within the limits would tell anything more. Specimens still undecided then are
-called by whether their probability exceeds one half. The first round starts from the priors alone,
+one, after at least one readout) or when no test within the limits would tell anything more.
+Specimens still undecided then are called by whether their probability exceeds one half. The first round starts from the priors alone,
 so its pools are sized for information at the prevalence. This is sequential Bayesian experimental
 design (Lindley 1956; for pooled tests Cuturi, Teboul & Vert 2020, arXiv:2004.12508).
 """
@@ -27,16 +27,23 @@ class BayesianLoop(Protocol):
 
     name = "bayes"
 
-    def __init__(self, max_pool_size: int | None = None, tests_per_round: int | None = None,
+    def __init__(self, max_pool_size: int | None = None, tests: int | None = None,
                  negative_below: float | None = None, positive_above: float | None = None,
-                 max_draws: int | None = None, n_draws: int | None = None,
-                 relative_information: float | None = None, max_rounds: int | None = None,
-                 seed=None):
+                 method: str | None = None, max_draws: int | None = None,
+                 n_draws: int | None = None, relative_information: float | None = None,
+                 max_rounds: int | None = None, seed=None):
+        """``tests``: tests per round (at most); ``method``: the decoder; ``max_draws``: material
+        per specimen over the whole loop; ``relative_information``: a round keeps tests worth at
+        least this fraction of its best one; ``seed``: the planner's draws (else from the Tester)."""
+        from ...defaults import METHODS
         from ...plan import DEFAULT_MAX_POOL_SIZE
         from ...plan.draws import DEFAULT_DRAWS
         self.max_pool_size = DEFAULT_MAX_POOL_SIZE if max_pool_size is None else int(max_pool_size)
-        self.tests_per_round = (DEFAULT_TESTS_PER_ROUND if tests_per_round is None
-                                else int(tests_per_round))
+        self.tests_per_round = DEFAULT_TESTS_PER_ROUND if tests is None else int(tests)
+        self.method = "auto" if method is None else str(method)
+        if self.method not in METHODS:
+            raise InputError(f"unknown method {self.method!r} (choose one of "
+                             f"{', '.join(METHODS)})")
         self.negative_below = NEGATIVE_BELOW if negative_below is None else float(negative_below)
         self.positive_above = POSITIVE_ABOVE if positive_above is None else float(positive_above)
         self.max_draws = max_draws  # total material per specimen over the whole loop
@@ -51,10 +58,11 @@ class BayesianLoop(Protocol):
         self.undecided_at_end = 0
 
     def parameters(self) -> dict:
-        return {"max_pool_size": self.max_pool_size, "tests_per_round": self.tests_per_round,
+        return {"max_pool_size": self.max_pool_size, "tests": self.tests_per_round,
+                "method": self.method,
                 "negative_below": self.negative_below, "positive_above": self.positive_above,
-                "relative_information": self.relative_information, "draws": self.n_draws,
-                "max_draws": self.max_draws}
+                "relative_information": self.relative_information,
+                "posterior_draws": self.n_draws, "material_limit": self.max_draws}
 
     def run(self, tester: Tester, prior: np.ndarray) -> Outcome:
         from ...decode import decode
@@ -66,12 +74,13 @@ class BayesianLoop(Protocol):
         run.prior = np.broadcast_to(np.asarray(prior, dtype=float), (n,)).copy()
         rng = np.random.default_rng(tester.rng.integers(2**63) if self.seed is None else self.seed)
         for _ in range(self.max_rounds):
-            post = decode(run, tester.assay, negative_below=self.negative_below,
-                          positive_above=self.positive_above)
+            post = decode(run, tester.assay, method=self.method,
+                          negative_below=self.negative_below, positive_above=self.positive_above,
+                          seed=int(rng.integers(2**31)))
             left = None
             if self.max_draws is not None:
                 left = np.maximum(self.max_draws - tester.draws, 0)
-            nxt = plan(run, tester.assay, post, tests=self.tests_per_round,
+            nxt = plan(run, tester.assay, post, tests=self.tests_per_round, method=self.method,
                        max_pool_size=self.max_pool_size, max_draws=left,
                        n_draws=self.n_draws, seed=rng, min_information=0.0,
                        relative_information=self.relative_information,
@@ -81,8 +90,9 @@ class BayesianLoop(Protocol):
             results = tester.read_round(nxt.pool_ptr, nxt.pool_members)
             run = nxt.extend(run, results)
         else:
-            post = decode(run, tester.assay, negative_below=self.negative_below,
-                          positive_above=self.positive_above)
+            post = decode(run, tester.assay, method=self.method,
+                          negative_below=self.negative_below, positive_above=self.positive_above,
+                          seed=int(rng.integers(2**31)))
         self.last_posterior = post
         codes = post.call_codes()
         self.undecided_at_end = int(np.sum(codes == 1))
