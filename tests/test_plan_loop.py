@@ -80,3 +80,16 @@ def test_loop_respects_a_total_material_limit():
     tester = CohortTester(truth, assay, rng)
     proto.run(tester, np.full(n, 0.1))
     assert tester.draws.max() <= 3
+
+
+def test_bayes_scheme_through_the_simulate_command(cli):
+    import json
+    r = cli("simulate", "--scheme", "bayes", "--samples", 80, "--prevalence", 0.03, "--runs", 2,
+            "--tests", 24, "--seed", 1, "--json")
+    assert r.code == 0, r.err
+    out = json.loads(r.out)
+    assert out["scheme"] == "bayes" and out["tests"] == 24
+    assert 0 < out["tests_per_sample"] < 1
+    r = cli("simulate", "--scheme", "bayes", "--samples", 80, "--prevalence", 0.03, "--runs", 2,
+            "--pool-size", 8)
+    assert r.code == 2 and "--pool-size" in r.err
