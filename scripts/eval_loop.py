@@ -71,7 +71,8 @@ def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05)):
     for name, assay in assays.items():
         for p in prevalences:
             se1 = float(assay.positive_probability(np.array([1]), np.array([1]))[0])
-            rows.append(f"| {name} | {p:g} | individual | 1 | {se1:.4f} | {assay.specificity:.4f} |")
+            rows.append(f"| {name} | {p:g} | individual | 1 | {se1:.4f} | "
+                        f"{assay.specificity:.4f} |")
             dorf = best_dorfman_assay(p, assay)
             rows.append(f"| {name} | {p:g} | Dorfman k={dorf['k']} (closed form) | "
                         f"{dorf['tests']:.4f} | {dorf['sensitivity']:.4f} | "
@@ -118,7 +119,8 @@ def evaluate(n, prevalence, assay, runs, seed, **options):
             "errors_per_sample": (fn + fp) / total,
             "errors_per_sample_se": float(np.std(per_run_errors, ddof=1) / math.sqrt(runs) / n)
             if runs > 1 else float("nan"),
-            "posterior_expected_errors_per_sample": expected_errors / total, "missed": fn / runs, "false_positive": fp / runs,
+            "posterior_expected_errors_per_sample": expected_errors / total,
+            "missed": fn / runs, "false_positive": fp / runs,
             "sensitivity": 1 - fn / max(pos, 1), "specificity": 1 - fp / max(neg, 1),
             "undecided_per_run": undecided / runs,
             "bound_ratio": tests / (total * entropy(prevalence)),

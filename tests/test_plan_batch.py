@@ -31,7 +31,7 @@ def positive_pool_run(k=12, extra=0):
 
 
 def block_design(rng, n_blocks, block, pools_per_block, max_pool, min_pool):
-    """Random pools within blocks of specimens, so that linked groups stay small enough to decode."""
+    """Random pools within blocks of specimens, so linked groups stay small enough to decode."""
     frames = []
     for b in range(n_blocks):
         part = random_design(rng, block, pools_per_block, max_pool=max_pool, min_pool=min_pool)

@@ -1,11 +1,12 @@
 """Exact joint posterior draws for small connected components, by enumerating their states.
 
-The planner needs joint draws of the statuses, not only marginals: within a positive pool the members
-are negatively correlated ("exactly one of them is positive"), and the value of a split depends on it.
-For a component of m specimens this kernel walks the 2^m states in Gray-code order (one specimen
-flipped per step, only its pools' positive counts updated, as in :mod:`bayespool.decode.exact`),
-stores each state's log weight, and draws states by inverse transform on the cumulative weights.
-Hard constraints (Se or Sp of 1) are log 0: such states get weight zero, never NaN.
+The planner needs joint draws of the statuses, not only marginals: within a positive pool the
+members are negatively correlated ("exactly one of them is positive"), and the value of a split
+depends on it. For a component of m specimens this kernel walks the 2^m states in Gray-code order
+(one specimen flipped per step, only its pools' positive counts updated, as in
+:mod:`bayespool.decode.exact`), stores each state's log weight, and draws states by inverse
+transform on the cumulative weights. Hard constraints (Se or Sp of 1) are log 0: such states get
+weight zero, never NaN.
 """
 from __future__ import annotations
 
@@ -18,7 +19,7 @@ from .exact import EXACT_LIMIT, impossible
 @njit(cache=True)
 def _state_log_weights(s0, m, csamples, cpools_a, cpools_b, cpools, sample_ptr, sample_pools,
                        lik_ptr, loglik, log_p, log_q, d, is_read, out):
-    """Log weight of every state of one component; out[g] is the state whose mask is g ^ (g >> 1)."""
+    """Log weight of every state of one component; out[g] is the state with mask g ^ (g >> 1)."""
     for a in range(cpools_a, cpools_b):
         is_read[cpools[a]] = True
     finite = 0.0

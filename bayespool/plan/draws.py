@@ -1,8 +1,8 @@
 """Joint posterior draws of the statuses, the planner's picture of what it does not know yet.
 
-Information gain is estimated over draws x ~ P(x | readouts). ``posterior_draws`` takes the decoder's
-own draws when it kept them (``Posterior.draws``, e.g. from a Gibbs sampler) and otherwise makes
-them: exact joint draws for every connected component small enough to enumerate (the posterior
+Information gain is estimated over draws x ~ P(x | readouts). ``posterior_draws`` takes the
+decoder's own draws when it kept them (``Posterior.draws``, e.g. from a Gibbs sampler) and otherwise
+makes them: exact joint draws for every connected component small enough to enumerate (the posterior
 factorises over components, so they are drawn independently), and independent draws from the
 marginals for specimens alone in their component and for components too large to enumerate (an
 approximation, reported in the notes). Components without an undecided specimen are drawn from their

@@ -1,17 +1,17 @@
 """The batch: candidates picked greedily, each scored given what the earlier picks will tell.
 
-Each pick maximises the conditional information I(Y_c; x | Y_B) = H(Y_B, Y_c) - H(Y_B) -
-E_x H(Y_c | x) given the batch B chosen so far, so two tests that would tell the same thing are not
-both taken. Because that information is monotone submodular (see :mod:`.information`), a candidate's
-gain can only fall as the batch grows; the lazy greedy method (Minoux 1978, Accelerated greedy
-algorithms for maximizing submodular set functions) re-scores a candidate only when it reaches the
-top of the queue with a stale score, and the greedy batch is within 1 - 1/e of the best batch of its
-size (Nemhauser, Wolsey & Fisher 1978).
+Each pick maximises the conditional information I(Y_c; x | Y_B) = H(Y_B, Y_c) - H(Y_B) - E_x H(Y_c |
+x) given the batch B chosen so far, so two tests that would tell the same thing are not both taken.
+Because that information is monotone submodular (see :mod:`.information`), a candidate's gain can
+only fall as the batch grows; the lazy greedy method (Minoux 1978, Accelerated greedy algorithms for
+maximizing submodular set functions) re-scores a candidate only when it reaches the top of the queue
+with a stale score, and the greedy batch is within 1 - 1/e of the best batch of its size (Nemhauser,
+Wolsey & Fisher 1978).
 
 Specimens linked through read pools (decoding components) are independent a posteriori; the tests of
-the batch join them into groups, and only the tests within a group need a joint outcome table. Limits
-are checked when a candidate reaches the top: specimen material left, the size of the linked group
-that reading it would make (the decoder's enumeration limit), and tests per group.
+the batch join them into groups, and only the tests within a group need a joint outcome table.
+Limits are checked when a candidate reaches the top: specimen material left, the size of the linked
+group that reading it would make (the decoder's enumeration limit), and tests per group.
 """
 from __future__ import annotations
 

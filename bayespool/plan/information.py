@@ -1,16 +1,16 @@
 """Expected information gain of pooled readouts, estimated over joint posterior draws.
 
 For a batch of readouts Y_1..Y_m, conditionally independent given the statuses x, the information
-they carry about x is the mutual information I(Y; x) = H(Y) - E_x H(Y | x) (bits), with
-H(Y | x) = sum_j H2(P(Y_j = 1 | x)) and P(Y_j = 1 | x) = 1 - Sp if no member of pool j is positive
-under x, Se(k_j, d_j(x)) otherwise: the exact per-draw readout probability, dilution included.
-H(Y) is the entropy of the mixture over draws, p(y) = sum_r w_r prod_j P(y_j | x_r), kept as a
-table of 2^m outcomes by draws for the few tests that share linked specimens. This is Bayesian
-sequential experimental design by expected information gain (Lindley 1956, On a measure of the
-information provided by an experiment, Ann. Math. Statist. 27(4); for pooled tests see Cuturi, Teboul
-& Vert 2020, arXiv:2004.12508). The information of conditionally independent readouts is monotone
-and submodular in the set of tests (Krause & Guestrin 2005, Near-optimal nonmyopic value of
-information in graphical models, UAI), which the lazy greedy batch relies on.
+they carry about x is the mutual information I(Y; x) = H(Y) - E_x H(Y | x) (bits), with H(Y | x) =
+sum_j H2(P(Y_j = 1 | x)) and P(Y_j = 1 | x) = 1 - Sp if no member of pool j is positive under x,
+Se(k_j, d_j(x)) otherwise: the exact per-draw readout probability, dilution included. H(Y) is the
+entropy of the mixture over draws, p(y) = sum_r w_r prod_j P(y_j | x_r), kept as a table of 2^m
+outcomes by draws for the few tests that share linked specimens. This is Bayesian sequential
+experimental design by expected information gain (Lindley 1956, On a measure of the information
+provided by an experiment, Ann. Math. Statist. 27(4); for pooled tests see Cuturi, Teboul & Vert
+2020, arXiv:2004.12508). The information of conditionally independent readouts is monotone and
+submodular in the set of tests (Krause & Guestrin 2005, Near-optimal nonmyopic value of information
+in graphical models, UAI), which the lazy greedy batch relies on.
 
 Draws are stored specimens x draws (``xt[i, r]``, uint8) so that a pool's members are read along
 contiguous rows; ``w`` are the draws' weights (summing to one).

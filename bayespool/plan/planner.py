@@ -7,6 +7,7 @@ import math
 import numpy as np
 
 from ..decode.graph import components
+from ..defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
 from ..decode.posterior import call_codes, check_thresholds
 from ..errors import InputError
 from .candidates import generate
@@ -61,8 +62,8 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
          max_pool_size: int = DEFAULT_MAX_POOL_SIZE, max_draws=None,
          negative_below: float | None = None, positive_above: float | None = None,
          n_draws: int = DEFAULT_DRAWS, seed=None, min_information: float = DEFAULT_MIN_INFORMATION,
-         relative_information: float = 0.0, max_linked: int = DEFAULT_MAX_LINKED, method: str = "auto",
-         draws: np.ndarray | None = None, id_prefix: str = "B",
+         relative_information: float = 0.0, max_linked: int = DEFAULT_MAX_LINKED,
+         method: str = "auto", draws: np.ndarray | None = None, id_prefix: str = "B",
          replicates_use_material: bool = False) -> Plan:
     """Plan up to ``tests`` pools of at most ``max_pool_size`` undecided specimens.
 
@@ -71,13 +72,13 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
 
     ``posterior``: the run's decoded posterior (decoded here with ``method`` when None).
     ``max_draws``: how many more times a specimen may be drawn in this batch (specimen volume), one
-    number or one per specimen; a ``draws_left`` column of the samples file sets it per specimen. Replicate reads re-use an
-    existing pool's mix and draw nothing, unless ``replicates_use_material`` (each reading takes a
-    fresh aliquot of every member). ``max_linked`` bounds the group of specimens that reading
-    a planned pool links together (so the next decode stays exact). ``min_information``: stop when
-    the best remaining test is expected to tell fewer bits; ``relative_information``: or fewer than
-    that fraction of the first pick. ``draws``: joint posterior draws (draws x specimens) to use
-    instead of making them. ``seed``: reproducible draws.
+    number or one per specimen; a ``draws_left`` column of the samples file sets it per specimen.
+    Replicate reads re-use an existing pool's mix and draw nothing, unless
+    ``replicates_use_material`` (each reading takes a fresh aliquot of every member). ``max_linked``
+    bounds the group of specimens that reading a planned pool links together (so the next decode
+    stays exact). ``min_information``: stop when the best remaining test is expected to tell fewer
+    bits; ``relative_information``: or fewer than that fraction of the first pick. ``draws``: joint
+    posterior draws (draws x specimens) to use instead of making them. ``seed``: reproducible draws.
     """
     tests = _whole(tests, "--tests", 1)
     max_pool_size = _whole(max_pool_size, "--max-pool-size", 1)
@@ -89,8 +90,8 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
             raise InputError(f"{name} must be a number >= 0, got {value!r}")
     if posterior is None:
         from ..decode import decode
-        lo, hi = check_thresholds(0.01 if negative_below is None else negative_below,
-                                  0.99 if positive_above is None else positive_above)
+        lo, hi = check_thresholds(NEGATIVE_BELOW if negative_below is None else negative_below,
+                                  POSITIVE_ABOVE if positive_above is None else positive_above)
         posterior = decode(run, assay, method=method, negative_below=lo, positive_above=hi,
                            seed=seed)
     else:
@@ -111,7 +112,7 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
     if not undecided.size:
         return _empty(run, True, 0, "decided", notes)
     if run.n_samples and not allowed[1:max_pool_size + 1].any():
-        raise InputError(f"the assay covers no pool size up to {max_pool_size}", 
+        raise InputError(f"the assay covers no pool size up to {max_pool_size}",
                          run.sources.get("assay"))
     rng = np.random.default_rng(seed)
     if draws is None:

@@ -1,4 +1,4 @@
-"""The result of planning: the next pools, what each is expected to tell, and how to fold them in."""
+"""The result of planning: the next pools, what each should tell, and how to fold them in."""
 from __future__ import annotations
 
 from dataclasses import dataclass, field

@@ -4,9 +4,10 @@ Each round decodes every readout so far (:func:`bayespool.decode.decode`), plans
 information gain (:func:`bayespool.plan.plan`), and reads it through the :class:`Tester`; the loop
 stops when every specimen is decided (probability below the negative threshold or above the positive
 one, after at least one readout) or when no test within the limits would tell anything more.
-Specimens still undecided then are called by whether their probability exceeds one half. The first round starts from the priors alone,
-so its pools are sized for information at the prevalence. This is sequential Bayesian experimental
-design (Lindley 1956; for pooled tests Cuturi, Teboul & Vert 2020, arXiv:2004.12508).
+Specimens still undecided then are called by whether their probability exceeds one half. The first
+round starts from the priors alone, so its pools are sized for information at the prevalence. This
+is sequential Bayesian experimental design (Lindley 1956; for pooled tests Cuturi, Teboul & Vert
+2020, arXiv:2004.12508).
 """
 from __future__ import annotations
 
@@ -34,7 +35,8 @@ class BayesianLoop(Protocol):
                  max_rounds: int | None = None, seed=None):
         """``tests``: tests per round (at most); ``method``: the decoder; ``max_draws``: material
         per specimen over the whole loop; ``relative_information``: a round keeps tests worth at
-        least this fraction of its best one; ``seed``: the planner's draws (else from the Tester)."""
+        least this fraction of its best one; ``seed``: the planner's draws (else from the
+        Tester)."""
         from ...defaults import METHODS
         from ...plan import DEFAULT_MAX_POOL_SIZE
         from ...plan.draws import DEFAULT_DRAWS
