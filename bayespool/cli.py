@@ -69,14 +69,23 @@ def _note(args, text: str) -> None:
 
 # ---- decode
 def _add_decode(sub):
-    from .defaults import METHODS
+    from .defaults import BP_DAMPING, BP_MAX_SWEEPS, BP_TOLERANCE, METHODS
     p = sub.add_parser("decode", help="per-sample probabilities and calls from pooled readouts",
                        description="Posterior probability that each sample is positive, and a "
                        "call, from pooled readouts. " + CAUTION)
     _add_run_inputs(p)
     p.add_argument("--method", choices=METHODS, default="auto",
-                   help="decoder (default: %(default)s: exact where every group of linked samples "
-                   "is small enough)")
+                   help="decoder (default: %(default)s: exact enumeration for small groups of linked "
+                   "samples, belief propagation for large ones)")
+    bp = p.add_argument_group("belief propagation (--method bp, and auto on large groups)")
+    bp.add_argument("--max-sweeps", type=int, default=BP_MAX_SWEEPS, metavar="N",
+                    help="stop after N sweeps over the pools (default: %(default)s)")
+    bp.add_argument("--damping", type=_probability, default=BP_DAMPING, metavar="D",
+                    help="keep a fraction D of each old message, 0 <= D < 1; damping helps when "
+                    "the iteration oscillates (default: %(default)s)")
+    bp.add_argument("--tolerance", type=_probability, default=BP_TOLERANCE, metavar="TOL",
+                    help="converged when no message (log-odds) changes by TOL or more in a sweep "
+                    "(default: %(default)s)")
     p.add_argument("--out", required=True, metavar="CSV", help="posterior: sample,probability,call,...")
     p.add_argument("--report", metavar="HTML", help="also write an offline HTML report")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
@@ -91,7 +100,8 @@ def _run_decode(args):
         check_output_path(args.report)
     run, assay = _load_inputs(args)
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
-                  positive_above=args.positive_above, seed=args.seed)
+                  positive_above=args.positive_above, seed=args.seed, damping=args.damping,
+                  tolerance=args.tolerance, max_sweeps=args.max_sweeps)
     write_frame(post.to_frame(), args.out)
     if args.report:
         from .report import write_report
