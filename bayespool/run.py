@@ -35,12 +35,23 @@ def check_prevalence(value, name: str = "--prevalence") -> float:
     return v
 
 
+_COUNTING_SORT_FROM = 1 << 16  # pairs; below this a NumPy sort is as fast and needs no numba
+
+
 def csr(rows: np.ndarray, cols: np.ndarray, n_rows: int):
-    """CSR (ptr, indices) of the pairs (rows[i], cols[i]), stable in input order within a row."""
-    order = np.argsort(rows, kind="stable")
+    """CSR (ptr, indices) of the pairs (rows[i], cols[i]), stable in input order within a row.
+
+    Large inputs take an O(n) counting sort (numba) instead of an O(n log n) stable argsort.
+    """
     ptr = np.zeros(n_rows + 1, dtype=np.int64)
     np.cumsum(np.bincount(rows, minlength=n_rows), out=ptr[1:])
-    return ptr, cols[order].astype(np.int32, copy=False)
+    if len(rows) < _COUNTING_SORT_FROM:
+        order = np.argsort(rows, kind="stable")
+        return ptr, cols[order].astype(np.int32, copy=False)
+    from .incidence import scatter_rows
+    out = np.empty(len(rows), dtype=np.int32)
+    scatter_rows(np.asarray(rows), np.asarray(cols), ptr, out)
+    return ptr, out
 
 
 @dataclass(eq=False)
@@ -158,19 +169,22 @@ class Run:
     def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence) -> "Run":
         prevalence = check_prevalence(prevalence)
         lf = lay.frame
-        for col in ("pool", "sample"):
-            blank = np.flatnonzero((lf[col] == "").to_numpy())
-            if len(blank):
-                raise lay.error(f"empty {col} ID", blank[0], col)
-        dup = lf.duplicated(["pool", "sample"], keep="first").to_numpy()
-        if dup.any():
-            r = int(np.flatnonzero(dup)[0])
-            raise lay.error(f"sample {lf['sample'].iat[r]!r} appears twice in pool "
-                            f"{lf['pool'].iat[r]!r}", r, "sample")
+        # IDs are factorised once; every later check works on the integer codes
         pool_codes, pool_ids = pd.factorize(lf["pool"], sort=False)
         sample_codes, sample_ids = pd.factorize(lf["sample"], sort=False)
         sample_ids = np.asarray(sample_ids, dtype=object)
         pool_ids = np.asarray(pool_ids, dtype=object)
+        for col, codes, ids in (("pool", pool_codes, pool_ids),
+                                ("sample", sample_codes, sample_ids)):
+            blank = np.flatnonzero(ids == "")
+            if len(blank):
+                raise lay.error(f"empty {col} ID", int(np.argmax(codes == blank[0])), col)
+        pair = pool_codes.astype(np.int64) * max(len(sample_ids), 1) + sample_codes
+        dup = pd.Series(pair).duplicated(keep="first").to_numpy()
+        if dup.any():
+            r = int(np.flatnonzero(dup)[0])
+            raise lay.error(f"sample {lf['sample'].iat[r]!r} appears twice in pool "
+                            f"{lf['pool'].iat[r]!r}", r, "sample")
 
         # samples file: priors and plate map; samples it adds to the layout are untested
         prior_values = None

@@ -8,6 +8,7 @@ component on which BP did not converge is handed to the decoder :func:`fallback_
 """
 from __future__ import annotations
 
+import importlib.util
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -55,9 +56,9 @@ def sample_columns(run: Run) -> dict:
 class DecodedPart:
     """What one decoder returns for the components it was given.
 
-    ``probability`` is indexed by specimen (only ``samples`` are meaningful). ``log_z`` and
-    ``count_parts`` (per component, in ``components`` order) are None when the decoder does not know
-    them. ``unconverged`` lists components whose result is not trustworthy (a fallback may redo them).
+    ``probability`` is indexed by specimen (only ``samples`` are meaningful). ``log_z`` (per
+    component) and ``count_parts`` (distributions of the number of positives of independent parts,
+    to be convolved) are None when the decoder does not know them. ``unconverged`` lists components whose result is not trustworthy (a fallback may redo them).
     """
 
     method: str
@@ -103,16 +104,34 @@ def _bp_part(run, lik_ptr, loglik, comps, selected, options) -> DecodedPart:
 PART_DECODERS: dict[str, Callable] = {"exact": _exact_part, "bp": _bp_part}
 
 
-def fallback_decoder(method: str, part: DecodedPart) -> str | None:
-    """The decoder that re-decodes the components on which ``part`` did not converge, or None.
+def fallback_decoder(method: str, part: DecodedPart) -> Callable | None:
+    """The part decoder that re-decodes the components on which ``part`` did not converge, or None.
 
-    Only ``auto`` falls back (an explicit ``--method bp`` keeps BP's answer, with a warning). The
-    fallback for BP is the Gibbs sampler once it is registered in PART_DECODERS as ``"gibbs"``; until
-    then there is none and decode warns loudly.
+    Only ``auto`` falls back (an explicit ``--method bp`` keeps BP's answer, with a warning). BP's
+    fallback is the Gibbs sampler, through ``bayespool.decode.gibbs.fallback`` when that module is
+    part of the package; without it there is none and decode warns loudly.
     """
     if method != "auto" or part.method != "bp" or not len(part.unconverged):
         return None
-    return "gibbs" if "gibbs" in PART_DECODERS else None
+    if importlib.util.find_spec(__name__ + ".gibbs") is None:
+        return None
+    return _gibbs_part
+
+
+def _gibbs_part(run, lik_ptr, loglik, comps, selected, options) -> DecodedPart:
+    """The Gibbs sampler on the given components, via ``gibbs.fallback(run, lik_ptr, loglik, comps,
+    selected, why, seed, negative_below, positive_above, options)``."""
+    from .gibbs import fallback
+    fb = fallback(run, lik_ptr, loglik, comps, selected, "belief propagation did not converge",
+                  options.get("seed"), options["negative_below"], options["positive_above"],
+                  options.get("gibbs_options"))
+    prob = np.array(run.prior, dtype=float)
+    prob[fb.specimens] = fb.probability
+    mcse = np.zeros(run.n_samples)
+    mcse[fb.specimens] = fb.mcse
+    return DecodedPart("gibbs", np.asarray(selected, dtype=np.int64), np.asarray(fb.specimens),
+                       prob, count_parts=[fb.count_distribution], mcse=mcse,
+                       diagnostics=dict(fb.diagnostics), warnings=[fb.note])
 
 
 # ---- which decoder for which component
@@ -212,21 +231,21 @@ def decode(run: Run, assay, method: str = "auto",
     comps = components(run)
     choice = choose_decoders(run, comps, method, exact_limit)
     options = {"exact_limit": exact_limit, "damping": damping, "tolerance": tolerance,
-               "max_sweeps": max_sweeps, "progress": progress, "seed": seed}
+               "max_sweeps": max_sweeps, "progress": progress, "seed": seed,
+               "negative_below": lo, "positive_above": hi}
     parts = []
     for name in choice.names():
         part = PART_DECODERS[name](run, lik_ptr, loglik, comps, choice.components(name), options)
         parts.append(part)
         if len(part.unconverged):
             fallback = fallback_decoder(method, part)
-            if fallback is not None:
-                redo = PART_DECODERS[fallback](run, lik_ptr, loglik, comps, part.unconverged,
-                                               options)
-                choice.method[part.unconverged] = fallback
-                part.warnings.append(_not_converged(part, comps, f"re-decoded by {fallback}"))
-                parts.append(redo)
-            else:
+            if fallback is None:
                 part.warnings.append(_not_converged(part, comps, None))
+                continue
+            redo = fallback(run, lik_ptr, loglik, comps, part.unconverged, options)
+            choice.method[part.unconverged] = redo.method
+            part.warnings.append(_not_converged(part, comps, f"re-decoded by {redo.method}"))
+            parts.append(redo)
     return _assemble(run, comps, choice, parts, lo, hi)
 
 
@@ -264,7 +283,7 @@ def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, l
     for part in parts:  # a fallback part comes after the part it corrects, and overrides it
         prob[part.samples] = part.probability[part.samples]
         sample_method[part.samples] = part.method
-    final = [p for p in parts if (choice.method[p.components] == p.method).all()]
+    final = [p for p in parts if (choice.method[p.components] == p.method).any()]
     log_evidence = dist = None
     if all(p.log_z is not None for p in final):
         log_evidence = float(sum(float(p.log_z.sum()) for p in final))
@@ -277,7 +296,7 @@ def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, l
             if p.mcse is not None:
                 mcse[p.samples] = p.mcse[p.samples]
     draws = next((p.draws for p in parts if p.draws is not None and len(p.samples) == n), None)
-    names = [m for m in PART_DECODERS if (choice.method == m).any()]
+    names = list(dict.fromkeys(p.method for p in final))
     sizes = comps.sizes
     diagnostics = {"components": int(comps.n_components),
                    "largest_component": int(sizes.max()) if len(sizes) else 0,

@@ -88,9 +88,11 @@ def _probabilities(m):
         return 0.0, 1.0
     if m >= 0.0:
         e = np.exp(-m)
-        return 1.0 / (1.0 + e), e / (1.0 + e)
+        inv = 1.0 / (1.0 + e)
+        return inv, e * inv
     e = np.exp(m)
-    return e / (1.0 + e), 1.0 / (1.0 + e)
+    inv = 1.0 / (1.0 + e)
+    return e * inv, inv
 
 
 # ---- one factor
