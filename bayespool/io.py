@@ -197,6 +197,9 @@ def _plain_cells(frame: pd.DataFrame, float_format: str):
         dtype = col.dtype
         if dtype == np.float64:
             values = col.to_numpy()
+            if len(values) and (values == values[0]).all():  # e.g. one prior for every sample
+                cells.append([float_format % values[0]] * len(values))
+                continue
             text = [float_format % v for v in values.tolist()]
             missing = np.flatnonzero(np.isnan(values))
             for r in missing.tolist():

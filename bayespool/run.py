@@ -54,6 +54,18 @@ def csr(rows: np.ndarray, cols: np.ndarray, n_rows: int):
     return ptr, out
 
 
+def _first_repeated_pair(rows, cols, n_rows: int, n_cols: int) -> int:
+    """Row of the first (pool, sample) pair that repeats an earlier one, or -1."""
+    if len(rows) < _COUNTING_SORT_FROM:
+        pair = rows.astype(np.int64) * max(n_cols, 1) + cols
+        dup = np.flatnonzero(pd.Series(pair).duplicated(keep="first").to_numpy())
+        return int(dup[0]) if len(dup) else -1
+    from .incidence import first_repeated_pair
+    ptr = np.zeros(n_rows + 1, dtype=np.int64)
+    np.cumsum(np.bincount(rows, minlength=n_rows), out=ptr[1:])
+    return int(first_repeated_pair(rows, cols, ptr, n_cols))
+
+
 @dataclass(eq=False)
 class Run:
     """Specimens, pools and readouts of one batch.
@@ -179,10 +191,8 @@ class Run:
             blank = np.flatnonzero(ids == "")
             if len(blank):
                 raise lay.error(f"empty {col} ID", int(np.argmax(codes == blank[0])), col)
-        pair = pool_codes.astype(np.int64) * max(len(sample_ids), 1) + sample_codes
-        dup = pd.Series(pair).duplicated(keep="first").to_numpy()
-        if dup.any():
-            r = int(np.flatnonzero(dup)[0])
+        r = _first_repeated_pair(pool_codes, sample_codes, len(pool_ids), len(sample_ids))
+        if r >= 0:
             raise lay.error(f"sample {lf['sample'].iat[r]!r} appears twice in pool "
                             f"{lf['pool'].iat[r]!r}", r, "sample")
 
