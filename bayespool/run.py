@@ -15,7 +15,7 @@ import pandas as pd
 
 from .defaults import PREVALENCE
 from .errors import InputError
-from .io import Table, read_table
+from .io import CodedTable, Table, read_id_table, read_table
 
 POSITIVE_WORDS = ("positive", "pos", "1")
 NEGATIVE_WORDS = ("negative", "neg", "0")
@@ -149,7 +149,7 @@ class Run:
     @classmethod
     def read(cls, layout, readouts=None, samples=None, prevalence: float = PREVALENCE) -> "Run":
         """Read and validate the layout, readouts and samples files (interface.md)."""
-        lay = read_table(layout, ["pool", "sample"], "layout")
+        lay = read_id_table(layout, ("pool", "sample"), "layout")
         rd = read_table(readouts, ["pool", "result"], "readouts") if readouts is not None else None
         sm = read_table(samples, ["sample"], "samples") if samples is not None else None
         run = cls.from_tables(lay, rd, sm, prevalence)
@@ -180,10 +180,14 @@ class Run:
     @classmethod
     def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence) -> "Run":
         prevalence = check_prevalence(prevalence)
-        lf = lay.frame
-        # IDs are factorised once; every later check works on the integer codes
-        pool_codes, pool_ids = pd.factorize(lf["pool"], sort=False)
-        sample_codes, sample_ids = pd.factorize(lf["sample"], sort=False)
+        # IDs are factorised once (a large plain file comes already coded); every later check
+        # works on the integer codes
+        if isinstance(lay, CodedTable):
+            pool_codes, pool_ids = lay.codes["pool"], lay.ids["pool"]
+            sample_codes, sample_ids = lay.codes["sample"], lay.ids["sample"]
+        else:
+            pool_codes, pool_ids = pd.factorize(lay.frame["pool"], sort=False)
+            sample_codes, sample_ids = pd.factorize(lay.frame["sample"], sort=False)
         sample_ids = np.asarray(sample_ids, dtype=object)
         pool_ids = np.asarray(pool_ids, dtype=object)
         for col, codes, ids in (("pool", pool_codes, pool_ids),
@@ -193,8 +197,8 @@ class Run:
                 raise lay.error(f"empty {col} ID", int(np.argmax(codes == blank[0])), col)
         r = _first_repeated_pair(pool_codes, sample_codes, len(pool_ids), len(sample_ids))
         if r >= 0:
-            raise lay.error(f"sample {lf['sample'].iat[r]!r} appears twice in pool "
-                            f"{lf['pool'].iat[r]!r}", r, "sample")
+            raise lay.error(f"sample {sample_ids[sample_codes[r]]!r} appears twice in pool "
+                            f"{pool_ids[pool_codes[r]]!r}", r, "sample")
 
         # samples file: priors and plate map; samples it adds to the layout are untested
         prior_values = None

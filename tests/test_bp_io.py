@@ -122,3 +122,57 @@ def test_large_layout_errors_match_the_small_path(tmp_path):
         Run.read(lay)
     assert (err.value.line, err.value.column) == (n + 2, 2)
     assert f"sample '{samples[10]}' appears twice in pool '{pools[10]}'" in err.value.message
+
+
+LAYOUTS = [
+    "pool,sample\nP1,S1\nP1,S2\nP2,S1\nP3,S3\n",
+    "pool,sample\nP1,S1\nP1,S2\nP2,S1",                      # no final newline
+    "sample,plate,pool\nS1,a,P1\nS2,b,P1\n\nS1,c,P2\n",       # other columns, a blank line
+    "pool,sample\nP1,S1\nP1,S2,x\n",                         # a line with a field too many
+    "pool,sample\nP1,S1\nP1\n",                              # a line with a field too few
+    'pool,sample\n"P1",S1\nP1,S2\n',                         # quotes: pandas reads these
+    "pool,sample\r\nP1,S1\r\nP2,S1\r\n",                     # CRLF
+    "pool,pool,sample\nP1,P1,S1\n",                          # repeated header name
+    "pool,sample\n,S1\nP1,S2\n",                             # empty pool ID
+    "pool,sample\nP1,S1\nP1,\n",                             # empty sample ID
+    "pool,sample\nP1,S1\nP2,S2\nP1,S1\n",                    # repeated pair
+]
+
+
+def read_both(tmp_path, monkeypatch, body):
+    import bayespool.io as bio
+    path = tmp_path / "layout.csv"
+    path.write_bytes(body.encode("utf-8"))
+    out = []
+    for threshold in (1 << 62, 0):  # pandas path, then the direct scan wherever it applies
+        monkeypatch.setattr(bio, "FAST_FROM_BYTES", threshold)
+        try:
+            out.append(Run.read(path))
+        except InputError as exc:
+            out.append((exc.message, exc.file, exc.line, exc.column))
+    return out
+
+
+@pytest.mark.parametrize("body", LAYOUTS)
+def test_direct_scan_of_large_plain_layouts_equals_the_pandas_path(tmp_path, monkeypatch, body):
+    slow, fast = read_both(tmp_path, monkeypatch, body)
+    if isinstance(slow, tuple):
+        assert fast == slow
+        return
+    assert list(fast.pool_ids) == list(slow.pool_ids)
+    assert list(fast.sample_ids) == list(slow.sample_ids)
+    for name in ("pool_ptr", "pool_members", "sample_ptr", "sample_pools"):
+        np.testing.assert_array_equal(getattr(fast, name), getattr(slow, name))
+
+
+def test_direct_scan_is_taken_for_a_plain_file(tmp_path, monkeypatch):
+    import bayespool.io as bio
+    from bayespool.io import CodedTable, read_id_table
+    path = tmp_path / "layout.csv"
+    path.write_text("pool,sample\nP1,S1\nP1,S2\n", encoding="utf-8")
+    monkeypatch.setattr(bio, "FAST_FROM_BYTES", 0)
+    table = read_id_table(path, ("pool", "sample"), "layout")
+    assert isinstance(table, CodedTable)
+    assert table.frame.to_dict("list") == {"pool": ["P1", "P1"], "sample": ["S1", "S2"]}
+    path.write_text('pool,sample\n"P1",S1\n', encoding="utf-8")
+    assert not isinstance(read_id_table(path, ("pool", "sample"), "layout"), CodedTable)
