@@ -11,7 +11,8 @@ For each size it measures, in the same run:
   * the whole command `python -m bayespool decode --method bp ... --json` as a child process
     (interpreter start, imports, parsing, checks, decoding, writing), its wall time and peak
     resident memory (from the child's own rusage);
-and prints the ratio command / floor, the BP sweep time per million memberships (from the command's
+and prints the ratio command / floor (wall clock, and CPU time, which a busy machine disturbs
+less), the BP sweep time per million memberships (from the command's
 JSON diagnostics) and the peak memory. It also times a warm start of `bayespool --help` and of a
 small decode. The data is synthetic, made here for timing only.
 
@@ -74,8 +75,8 @@ def make_workload(folder: Path, n_samples: int, pool_size: int = 16, pools_per_s
             "truth": truth, "sample_ids": sample_ids}
 
 
-def io_floor(files: dict, out: Path, sample_ids: np.ndarray) -> float:
-    """Seconds pandas needs to read both CSVs and write a posterior-shaped CSV of the samples.
+def io_floor(files: dict, out: Path, sample_ids: np.ndarray) -> tuple[float, float]:
+    """Wall and CPU seconds pandas needs to read both CSVs and write a posterior-shaped CSV of the samples.
 
     The frame written has the command's columns and rows; it is built before the clock starts, so
     the floor is reading and writing alone (no parsing of IDs, no arithmetic).
@@ -87,11 +88,11 @@ def io_floor(files: dict, out: Path, sample_ids: np.ndarray) -> float:
                           "call": np.where(p > 0.99, "positive", "negative").astype(object),
                           "prior": np.full(n, PREVALENCE), "method": np.full(n, "bp", object),
                           "pools": counts, "positive_pools": counts})
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     pd.read_csv(files["layout"])
     pd.read_csv(files["readouts"])
     frame.to_csv(out, index=False)
-    return time.perf_counter() - t0
+    return time.perf_counter() - t0, time.process_time() - c0
 
 
 def run_child(args: list[str]) -> tuple[float, float, str, str, float]:
@@ -120,7 +121,7 @@ def decode_command(files: dict, extra=()) -> list[str]:
 def bench(n_samples: int, folder: Path) -> dict:
     work = make_workload(folder, n_samples)
     files = work["files"]
-    floor = io_floor(files, folder / "floor.csv", work["sample_ids"])
+    floor, floor_cpu = io_floor(files, folder / "floor.csv", work["sample_ids"])
     wall, rss, text, _, cpu = run_child(decode_command(files))
     summary = json.loads(text)
     bp = summary["bp"]
@@ -130,12 +131,14 @@ def bench(n_samples: int, folder: Path) -> dict:
     decided = calls != "inconclusive"
     wrong = int(((calls == "positive") != truth.to_numpy())[decided].sum())
     per_million = bp["seconds"] / max(bp["sweeps"], 1) / (work["memberships"] / 1e6)
+    per_million_cpu = bp["cpu_seconds"] / max(bp["sweeps"], 1) / (work["memberships"] / 1e6)
     return {"samples": work["samples"], "pools": work["pools"],
             "memberships": work["memberships"], "floor_s": floor, "command_s": wall,
-            "command_cpu_s": cpu,
+            "command_cpu_s": cpu, "floor_cpu_s": floor_cpu, "cpu_ratio": cpu / floor_cpu,
             "ratio": wall / floor, "peak_mb": rss, "sweeps": bp["sweeps"],
             "converged": bp["converged"], "residual": bp["residual"],
             "bp_s": bp["seconds"], "sweep_s_per_million": per_million,
+            "sweep_cpu_s_per_million": per_million_cpu,
             "decided": int(decided.sum()), "wrong_calls": wrong}
 
 
@@ -164,14 +167,16 @@ def main(argv=None) -> int:
               f"{warm['help'][1]:.2f}, small decode (1,600 specimens) "
               f"{warm['small_decode'][0]:.2f} / {warm['small_decode'][1]:.2f}")
         print(f"{'specimens':>10} {'pools':>8} {'members':>9} {'floor s':>8} {'command s':>9} "
-              f"{'cpu s':>6} {'ratio':>6} {'sweeps':>6} {'conv':>5} {'s/sweep/1M':>10} "
+              f"{'ratio':>6} {'floor cpu':>9} {'cpu s':>6} {'cpu ratio':>9} {'sweeps':>6} "
+              f"{'conv':>5} {'s/sweep/1M':>10} {'cpu':>6} "
               f"{'peak MB':>8} {'wrong':>6}")
         for n in args.samples:
             r = bench(n, base / f"n{n}")
             print(f"{r['samples']:>10,} {r['pools']:>8,} {r['memberships']:>9,} "
-                  f"{r['floor_s']:>8.2f} {r['command_s']:>9.2f} {r['command_cpu_s']:>6.2f} "
-                  f"{r['ratio']:>6.2f} "
+                  f"{r['floor_s']:>8.2f} {r['command_s']:>9.2f} {r['ratio']:>6.2f} "
+                  f"{r['floor_cpu_s']:>9.2f} {r['command_cpu_s']:>6.2f} {r['cpu_ratio']:>9.2f} "
                   f"{r['sweeps']:>6} {str(r['converged']):>5} {r['sweep_s_per_million']:>10.4f} "
+                  f"{r['sweep_cpu_s_per_million']:>6.4f} "
                   f"{r['peak_mb']:>8.0f} {r['wrong_calls']:>6}", flush=True)
     return 0
 
