@@ -86,3 +86,28 @@ def test_bad_bp_options_are_one_line_errors(cli, tmp_path):
         assert text in res.err and "Traceback" not in res.err
         assert len(res.err.strip().splitlines()) == 1
         assert not out.exists()
+
+
+def test_help_imports_no_heavy_module_and_kernels_are_cached():
+    # `bayespool --help` must start fast: building the parser imports neither numba nor pandas;
+    # every numba kernel of the decoder is compiled with cache=True, so a second start of the
+    # command loads machine code instead of compiling (the start-up figures are in
+    # scripts/bench_decode.py)
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    code = ("import sys; from bayespool.cli import build_parser; build_parser().format_help(); "
+            "print(sorted(m for m in ('numba', 'pandas', 'scipy') if m in sys.modules))")
+    res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         cwd=Path(__file__).resolve().parents[1])
+    assert res.returncode == 0 and res.stdout.strip() == "[]", res.stdout + res.stderr
+    from numba.core.dispatcher import Dispatcher
+
+    from bayespool import csvscan, incidence
+    from bayespool.decode import bp
+    kernels = [v for m in (bp, csvscan, incidence) for v in vars(m).values()
+               if isinstance(v, Dispatcher)]
+    assert len(kernels) >= 15
+    for k in kernels:
+        assert type(k._cache).__name__ == "FunctionCache", k
