@@ -42,7 +42,7 @@ def sampler_module(monkeypatch):
         dist = counts[count_ptr[selected[0]]:count_ptr[selected[0] + 1]]
         return StandIn(specimens, prob[specimens], np.full(len(specimens), 1e-3),
                        np.ones(len(specimens)), np.full(len(specimens), 400.0), dist,
-                       f"{why}: stand-in sampler", {"gibbs": {"chains": 4}})
+                       f"{why}: stand-in sampler", {"gibbs": {"chains": 4, "converged": True}})
 
     name = "bayespool.decode.gibbs"
     module = types.ModuleType(name)
@@ -66,7 +66,9 @@ def test_auto_hands_unconverged_bp_groups_to_the_sampler(sampler_module):
     assert np.all(post.mcse == 1e-3)
     assert any("re-decoded by gibbs" in w for w in post.warnings)
     assert any("stand-in sampler" in w for w in post.warnings)
-    assert post.diagnostics["converged"] is False  # BP's own verdict stays on record
+    # the final answer converged (the sampler's verdict); BP's own verdict stays on record
+    assert post.diagnostics["converged"] is True
+    assert post.diagnostics["bp"]["converged"] is False
 
 
 def test_no_fallback_for_an_explicit_bp_or_a_converged_run(sampler_module):

@@ -70,6 +70,7 @@ class DecodedPart:
     mcse: np.ndarray | None = None
     draws: np.ndarray | None = None
     unconverged: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
+    converged: bool | None = None  # None: the notion does not apply (exact enumeration)
     diagnostics: dict = field(default_factory=dict)
     warnings: list = field(default_factory=list)
 
@@ -97,7 +98,8 @@ def _bp_part(run, lik_ptr, loglik, comps, selected, options) -> DecodedPart:
                     max_sweeps=options.get("max_sweeps", MAX_SWEEPS),
                     progress=options.get("progress"))
     return DecodedPart("bp", selected, _samples_of(comps, selected), res.probability,
-                       unconverged=res.unconverged, diagnostics=res.diagnostics())
+                       unconverged=res.unconverged, converged=bool(res.converged),
+                       diagnostics=res.diagnostics())
 
 
 # name -> function(run, lik_ptr, loglik, comps, selected component ids, options dict) -> DecodedPart
@@ -129,8 +131,10 @@ def _gibbs_part(run, lik_ptr, loglik, comps, selected, options) -> DecodedPart:
     prob[fb.specimens] = fb.probability
     mcse = np.zeros(run.n_samples)
     mcse[fb.specimens] = fb.mcse
+    verdict = dict(fb.diagnostics).get("gibbs", {}).get("converged")
     return DecodedPart("gibbs", np.asarray(selected, dtype=np.int64), np.asarray(fb.specimens),
                        prob, count_parts=[fb.count_distribution], mcse=mcse,
+                       converged=None if verdict is None else bool(verdict),
                        diagnostics=dict(fb.diagnostics), warnings=[fb.note])
 
 
@@ -275,6 +279,19 @@ def _not_converged(part: DecodedPart, comps: Components, remedy: str | None) -> 
     return f"{head}; their probabilities are unreliable: {hint}"
 
 
+def _overall_converged(parts: list, choice: DecoderChoice) -> bool:
+    """False when some component's final answer comes from a decoder that reports it did not
+    converge (enumeration needs no iteration; components re-decoded by a fallback take the
+    fallback's verdict)."""
+    for p in parts:
+        if p.converged is not False:
+            continue
+        doubtful = p.unconverged if len(p.unconverged) else p.components
+        if (choice.method[doubtful] == p.method).any():
+            return False
+    return True
+
+
 def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, lo: float,
               hi: float) -> Posterior:
     n = run.n_samples
@@ -304,14 +321,14 @@ def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, l
                    "decoders": {m: {"components": int((choice.method == m).sum()),
                                     "samples": int(sizes[choice.method == m].sum())}
                                 for m in names}}
+    diagnostics["converged"] = _overall_converged(parts, choice)
     bp = next((p for p in parts if p.method == "bp"), None)
     if bp is not None:
         diagnostics["bp"] = bp.diagnostics
-        diagnostics.update(converged=bool(bp.diagnostics["converged"]),
-                           sweeps=int(bp.diagnostics["sweeps"]),
+        diagnostics.update(sweeps=int(bp.diagnostics["sweeps"]),
                            residual=bp.diagnostics["residual"])
-    else:  # enumeration needs no iteration: converged by construction
-        diagnostics.update(converged=True, sweeps=0, residual=0.0)
+    else:
+        diagnostics.update(sweeps=0, residual=0.0)
     for p in parts:
         for key, value in p.diagnostics.items():
             if p.method != "bp":
