@@ -149,30 +149,40 @@ def sensitivity_intervals(fit: SensitivityFit, method: str = "profile", level: f
     return out, notes, cov
 
 
-def boundary_warnings(fit: SensitivityFit, cells: Cells) -> list[str]:
+def edge_warnings(params, at_lower, at_upper, family_name: str, latent: bool = False) -> list:
     """Plain-language warnings for estimates on the edge of the parameter space."""
     out = []
-    opt = fit.optimum
-    for p, lo, hi in zip(fit.space.free_params, opt.at_lower, opt.at_upper):
+    for p, lo, hi in zip(params, at_lower, at_upper):
         if not (lo or hi):
             continue
-        if p.scale == "logit":
-            text = (f"{p.name} is estimated at {'0' if lo else '1'}, the edge of its range: "
-                    f"{'no' if lo else 'every'} readout it covers was positive")
-            if fit.family.name in ("constant", "table"):
+        edge = "0" if lo else "1"
+        if p.name == "specificity":
+            if hi:
+                out.append("the specificity is estimated at 1, so decode treats every positive "
+                           "readout as proof of a positive member (fix a value with --fix "
+                           "specificity=... if that is too strong)")
+            else:
+                out.append("the specificity is estimated at 0")
+        elif p.name == "prevalence":
+            out.append(f"the prevalence is estimated at {edge}")
+        elif p.scale == "logit":
+            covers = "" if latent else (f": {'no' if lo else 'every'} readout it covers was "
+                                        "positive")
+            text = f"{p.name} is estimated at {edge}, the edge of its range{covers}"
+            if family_name in ("constant", "table"):
                 text += ("; decode then treats a " + ("positive" if lo else "negative")
                          + " readout of such a pool as ruling those positives out (fix a value "
                          f"with --fix '{p.name}=...' if that is too strong)")
             out.append(text)
         elif p.name == "r50":
             out.append("r50 ran to the edge of its range: "
-                       + ("sensitivity shows no fall within the dilutions tested; the constant "
+                       + ("sensitivity shows no fall within the dilutions seen; the constant "
                           "model may describe the data as well" if hi else
-                          "sensitivity is already low at the smallest dilution tested"))
+                          "sensitivity is already low at the smallest dilution seen"))
         elif p.name == "slope":
             out.append("the slope ran to the edge of its range: "
-                       + ("the fall of sensitivity is abrupt between two tested dilutions and "
-                          "its steepness is not determined" if hi else
+                       + ("the fall of sensitivity is abrupt between two dilutions and its "
+                          "steepness is not determined" if hi else
                           "the data show almost no change of sensitivity with dilution"))
     return out
 
@@ -250,6 +260,14 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
         raise InputError("the validation data have no readouts of pools with a positive member "
                          "(positives >= 1), so the sensitivity cannot be estimated", data.source)
 
+    candidates = FAMILIES if model == "best" else (model,)
+    known = {p.name: p for m in candidates for p in _family_for(m, cells).params()}
+    for name, value in fixed.items():
+        if name not in known:
+            raise InputError(f"cannot fix {name!r}: the parameters of "
+                             f"{'these models' if model == 'best' else 'this model'} are "
+                             f"{', '.join(['specificity'] + sorted(known))}")
+        known[name].check(value)
     comparison = None
     if compare or model == "best":
         comparison = compare_families(cells, fixed, ll_sp, int(sp_free), source=data.source)
@@ -262,7 +280,8 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
         chosen = str(ok.sort_values("aic", kind="stable").iloc[0]["model"])
     if comparison is not None:
         comparison.loc[comparison["model"] == chosen, "chosen"] = True
-    sens_fixed = {k: v for k, v in fixed.items()}
+    own = {p.name for p in _family_for(chosen, cells).params()}
+    sens_fixed = {k: v for k, v in fixed.items() if k in own}
     fit = fit_sensitivity(cells, chosen, sens_fixed, source=data.source)
 
     for _ in range(3):
@@ -275,7 +294,8 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
     else:
         raise InputError("the sensitivity fit keeps finding better optima while profiling; the "
                          "likelihood is too irregular for intervals (try --intervals wald)")
-    warnings += boundary_warnings(fit, cells) + notes
+    warnings += edge_warnings(fit.space.free_params, fit.optimum.at_lower, fit.optimum.at_upper,
+                              fit.family.name) + notes
     if sp_free and sp == 1.0:
         warnings.append(f"no false positive in {data.specificity_counts()[0]} readouts: the "
                         "specificity is estimated at 1, so decode treats every positive readout "
@@ -327,6 +347,8 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
                          data.n_rows, level, intervals, goodness, comparison, warnings,
                          {"validation": data.source}, curve_model=curve,
                          extra={"rows_skipped": data.skipped} if data.skipped else {})
+    names = [("logit " if p.scale == "logit" else "log ") + p.name for p in fit.space.free_params]
+    result.covariance = pd.DataFrame(cov, index=names, columns=names)
     result.assay = Assay(sp, assay.sensitivity, fit_details(result))
     return result
 

@@ -2,8 +2,9 @@
 
 Past runs hold pools and the follow-up tests of their members (individual tests are pools of one,
 read by the same imperfect assay). With statuses x_i ~ Bernoulli(prevalence) independently, the
-likelihood of the readouts is the evidence that the exact decoder already computes per connected
-component, log P(y | theta) = sum_c log Z_c(theta) (bayespool.decode.exact). It is maximised directly
+likelihood of the readouts is the evidence log P(y | theta) = sum_c log Z_c(theta) over connected
+components (evidence.py: pools with their follow-up in closed form, the rest by the exact
+decoder's enumeration, bayespool.decode.exact). It is maximised directly
 over (prevalence, specificity, sensitivity parameters) on the unconstrained scale with scipy's
 SLSQP: the same estimate as EM with the exact posterior as E-step (Dempster, Laird & Rubin 1977)
 reaches at its fixed point, without EM's slow final convergence, and the curvature of the same
@@ -15,19 +16,17 @@ rates of diagnostic tests, Biometrics 36(1)), see identify.py.
 """
 from __future__ import annotations
 
-import dataclasses
-
 import numpy as np
 import pandas as pd
 
 from ..assay import Assay
-from ..decode.exact import EXACT_LIMIT, decode_exact
-from ..decode.graph import components
-from ..errors import ImpossibleEvidenceError, InputError
+from ..errors import InputError
 from ..run import Run
+from .evidence import Evidence
 from .curve import CurveModel, covariance
 from .families import FAMILIES, Family, Param, family, probability
-from .fit import INTERVAL_NAMES, INTERVALS, LocalOptimum, fit_details, natural_interval
+from .fit import (INTERVAL_NAMES, INTERVALS, LocalOptimum, edge_warnings, fit_details,
+                  natural_interval)
 from .identify import identifiability
 from .intervals import clopper_pearson
 from .mle import Profiler, hessian, maximize, standard_errors, wald_interval
@@ -40,23 +39,16 @@ PENALTY = 1e12  # value returned where the assay makes the readouts impossible
 class RunLikelihood:
     """Negative log marginal likelihood of a run's readouts as a function of the free parameters."""
 
-    def __init__(self, run: Run, fam: Family, space: Space):
+    def __init__(self, run: Run, fam: Family, space: Space, evidence: Evidence | None = None):
         self.run, self.family, self.space = run, fam, space
-        self.comps = components(run)
+        self.evidence = Evidence(run) if evidence is None else evidence
         self.evaluations = 0
 
     def assay(self, values: dict) -> Assay:
         return Assay(values["specificity"], self.family.sensitivity(values))
 
     def loglik_at(self, values: dict) -> float:
-        run = dataclasses.replace(self.run, prior=np.full(self.run.n_samples,
-                                                          values["prevalence"]))
-        ptr, ll = self.assay(values).log_likelihood(run.pool_size, run.n_positive, run.n_negative)
-        try:
-            _, log_z, _, _ = decode_exact(run, ptr, ll, self.comps)
-        except ImpossibleEvidenceError:
-            return -np.inf
-        return float(log_z.sum())
+        return self.evidence.loglik(self.assay(values), values["prevalence"])
 
     def __call__(self, u_free) -> float:
         self.evaluations += 1
@@ -130,18 +122,20 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
     if not read.any():
         raise InputError("the readouts hold no readout of any pool: nothing to fit",
                          run.sources.get("readouts"))
-    comps = components(run)
-    if len(comps.sizes) and comps.sizes.max() > EXACT_LIMIT:
-        raise InputError(f"a connected group of {int(comps.sizes.max())} specimens linked through "
-                         f"shared pools is above the exact likelihood's limit of {EXACT_LIMIT}; "
-                         "fitting from such runs is not supported", run.sources.get("layout"))
+    if model not in FAMILIES + ("best",):
+        raise InputError(f"unknown model {model!r} (choose one of {', '.join(FAMILIES)} or best)")
+    fixed = dict(fixed or {})
+    candidates = FAMILIES if model == "best" else (model,)
+    known = {p.name: p for m in candidates for p in _params(_family_for_run(m, run, read))}
+    for name, value in fixed.items():
+        if name not in known:
+            raise InputError(f"cannot fix {name!r}: the parameters of "
+                             f"{'these models' if model == 'best' else 'this model'} are "
+                             f"{', '.join(known)}")
+        known[name].check(value)
+    evidence = Evidence(run)
     if model == "best":
-        fits = {}
-        for name in FAMILIES:
-            try:
-                fits[name] = _fit_run(run, name, fixed, read)
-            except InputError:
-                continue
+        fits = {name: _fit_run(run, name, fixed, read, evidence) for name in FAMILIES}
         aic = {n: 2 * f[1].n_free - 2 * f[2].loglik for n, f in fits.items()}
         chosen = min(aic, key=aic.get)
         comparison = pd.DataFrame([{"model": n, "log_likelihood": fits[n][2].loglik,
@@ -149,11 +143,9 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
                                     "delta_aic": a - aic[chosen], "chosen": n == chosen,
                                     "note": ""} for n, a in aic.items()])
         fam, space, opt, objective = fits[chosen]
-    elif model in FAMILIES:
-        fam, space, opt, objective = _fit_run(run, model, fixed, read)
-        chosen, comparison = model, None
     else:
-        raise InputError(f"unknown model {model!r} (choose one of {', '.join(FAMILIES)} or best)")
+        fam, space, opt, objective = _fit_run(run, model, fixed, read, evidence)
+        chosen, comparison = model, None
 
     for _ in range(3):
         try:
@@ -185,6 +177,7 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
     if run.samples is not None and "prior" in run.samples.columns:
         warnings.append("the priors of the samples file are not used: calibration fits one "
                         "prevalence for every specimen")
+    warnings += edge_warnings(space.free_params, opt.at_lower, opt.at_upper, fam.name, latent=True)
     warnings += ident.warnings
     assay = Assay(values["specificity"], fam.sensitivity(values))
     curve = None
@@ -204,6 +197,8 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
                          {k: v for k, v in run.sources.items() if k in ("layout", "readouts",
                                                                        "samples") and v},
                          identifiable=not ident.problem, extra=extra, curve_model=curve)
+    names = [("logit " if p.scale == "logit" else "log ") + p.name for p in space.free_params]
+    result.covariance = pd.DataFrame(covariance(info, held), index=names, columns=names)
     result.assay = Assay(assay.specificity, assay.sensitivity, fit_details(result))
     return result
 
@@ -233,10 +228,12 @@ def _intervals(objective, opt, space: Space, intervals: str, level: float):
     return info, held, limits
 
 
-def _fit_run(run: Run, model: str, fixed, read):
+def _fit_run(run: Run, model: str, fixed, read, evidence: Evidence):
     fam = _family_for_run(model, run, read)
-    space = Space(_params(fam), fixed, None)
-    objective = RunLikelihood(run, fam, space)
+    params = _params(fam)
+    own = {p.name for p in params}
+    space = Space(params, {k: v for k, v in (fixed or {}).items() if k in own}, None)
+    objective = RunLikelihood(run, fam, space, evidence)
     starts = [space.free_from_natural({**s, **space.fixed}) for s in _starts(run, fam, read)]
     opt = maximize(objective, starts, space.bounds, jac=False)
     return fam, space, opt, objective

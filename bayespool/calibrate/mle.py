@@ -1,8 +1,8 @@
 """Maximum likelihood on the unconstrained scale, and confidence intervals for each parameter.
 
 ``maximize`` runs scipy.optimize from several starts within wide bounds on the unconstrained scale
-(with Fisher scoring steps when an information matrix is available). ``profile_interval``
-inverts the likelihood-ratio test: the interval holds every value whose profile deviance
+(after a fast local fit when the likelihood offers one). ``Profiler.interval`` inverts the
+likelihood-ratio test: the interval holds every value whose profile deviance
 2 (max log L - max log L given the value) stays below the chi-square(1) quantile (Venzon &
 Moolgavkar 1988, A method for computing profile-likelihood-based confidence intervals, Applied
 Statistics 37(1)). ``wald_interval`` is estimate +- z * standard error on the unconstrained scale,
@@ -71,10 +71,28 @@ def maximize(objective, starts, bounds, jac: bool = True, fisher=None, local=Non
         u, f = local(np.clip(best_res.x, lo, hi))
         if f <= best_f:
             best_u, best_f = u, f
+    best_u, best_f = _snap(objective, jac, best_u, best_f, lo, hi)
     at_lo = best_u <= lo + BOUND_TOL
     at_hi = best_u >= hi - BOUND_TOL
     return Optimum(best_u, -best_f, bool(best_res.success) or bool(at_lo.any() or at_hi.any()),
                    at_lo, at_hi, str(best_res.message), evaluations)
+
+
+def _snap(objective, jac, u, f, lo, hi, reach: float = 12.0, tol: float = 1e-9):
+    """Move parameters that stopped on the flat approach to a bound (a probability within about
+    1e-5 of 0 or 1, where the likelihood no longer changes) onto the bound, when that costs no
+    likelihood; an optimiser stops short there, and the left-over curvature would look like a
+    ridge."""
+    u = u.copy()
+    for i in range(len(u)):
+        for bound in (lo[i], hi[i]):
+            if 0 < abs(bound - u[i]) < reach:
+                cand = u.copy()
+                cand[i] = bound
+                fc = objective(cand)[0] if jac else objective(cand)
+                if fc <= f + tol:
+                    u, f = cand, min(f, fc)
+    return u, f
 
 
 def _bounded(objective, x0, jac, lo, hi, options=None):
@@ -111,18 +129,16 @@ def hessian(objective, u, jac: bool = True, step: float = 1e-4) -> np.ndarray:
 
 
 def standard_errors(info: np.ndarray) -> np.ndarray:
-    """Square roots of the diagonal of the inverse information (inf where it is singular)."""
+    """Square roots of the diagonal of the inverse information; inf where the information is
+    singular or not positive definite (a direction the data do not determine)."""
     n = len(info)
     if n == 0:
         return np.zeros(0)
-    try:
-        cov = np.linalg.inv(info)
-        se = np.sqrt(np.where(np.diag(cov) > 0, np.diag(cov), np.inf))
-    except np.linalg.LinAlgError:
-        se = np.full(n, np.inf)
-    if not np.all(np.isfinite(np.linalg.eigvalsh(info))) or np.linalg.eigvalsh(info).min() <= 0:
-        se = np.where(np.isfinite(se), se, np.inf)
-    return se
+    sym = 0.5 * (info + info.T)
+    if not np.all(np.isfinite(sym)) or np.linalg.eigvalsh(sym).min() <= 0:
+        return np.full(n, np.inf)
+    var = np.diag(np.linalg.inv(sym))
+    return np.sqrt(np.where(var > 0, var, np.inf))
 
 
 def wald_interval(u_hat: float, se: float, level: float = 0.95) -> tuple[float, float]:

@@ -42,7 +42,9 @@ class Calibration:
     ``kind`` is ``"validation"`` (known truth) or ``"runs"`` (latent truth). ``parameters`` has one
     row per parameter: estimate, lower, upper (at ``level``), the interval method and whether the
     value was fixed. ``cells`` has one row per (pool size, positives) cell for validation fits (per
-    pool size for runs). ``comparison`` lists the families tried with their AIC.
+    pool size for runs). ``comparison`` lists the families tried with their AIC. ``covariance``
+    is the large-sample covariance of the free parameters on their unconstrained scale (logit of
+    probabilities, log of r50 and slope), from the inverse information.
     """
 
     kind: str
@@ -60,6 +62,7 @@ class Calibration:
     warnings: list = field(default_factory=list)
     sources: dict = field(default_factory=dict)
     identifiable: bool | None = None
+    covariance: pd.DataFrame | None = None  # of the free parameters on the unconstrained scale
     extra: dict = field(default_factory=dict)
     curve_model: object = None  # draws sensitivity curves with their uncertainty (plot, report)
 
@@ -79,7 +82,7 @@ class Calibration:
         """The parameter table: parameter, estimate, lower, upper, interval, fixed."""
         return self.parameters.copy()
 
-    def sensitivity_curve(self, dilution, pool_size=None, draws: int = 2000, seed: int = 0):
+    def sensitivity_curve(self, dilution, draws: int = 2000, seed: int = 0):
         """Fitted Se against dilution k/d with a pointwise band at ``level`` (DataFrame)."""
         if self.curve_model is None:
             raise ValueError("this calibration has no sensitivity curve")
