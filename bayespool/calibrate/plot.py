@@ -66,6 +66,14 @@ def figure(result: Calibration):
             ax.plot(group["dilution"], group["fitted_rate"], marker="_", linestyle="none",
                     markersize=14, color=colours[n % len(colours)],
                     label=f"fitted ({result.model})" if n == 0 else None)
+    if result.kind == "runs" and result.model == "table":
+        # latent truth: the fitted entries (one per pool size) with their intervals
+        rows = result.parameters[result.parameters["parameter"].str.startswith("se[")]
+        sizes = rows["parameter"].str.extract(r"se\[(\d+),")[0].astype(float).to_numpy()
+        est = rows["estimate"].to_numpy(float)
+        yerr = np.vstack([est - rows["lower"].to_numpy(float), rows["upper"].to_numpy(float) - est])
+        ax.errorbar(sizes, est, yerr=yerr, fmt="s", color="#08519c", capsize=3,
+                    label=f"fitted per pool size ({pct} intervals)")
     ax.set_xscale("log")
     ax.set_ylim(-0.02, 1.04)
     ax.set_xlabel("dilution k / d (pool size / positive members)")
@@ -75,8 +83,12 @@ def figure(result: Calibration):
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
     sp = result.assay.specificity
-    fig.text(0.01, 0.01, f"specificity {sp:.4g}; bars: {pct} Clopper-Pearson intervals. "
-             + CAUTION, fontsize=6.5, color="#555555")
+    notes = [f"specificity {sp:.4g}"]
+    if len(sens):
+        notes.append(f"bars: {pct} Clopper-Pearson intervals of the observed rates")
+    elif result.kind == "runs":
+        notes.append("truth latent: no observed rates per dilution")
+    fig.text(0.01, 0.01, "; ".join(notes) + ". " + CAUTION, fontsize=6.5, color="#555555")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
     return fig
 
