@@ -501,6 +501,8 @@ def _add_calibrate(sub):
                    help="random seed for the bootstrap and the plot's band")
     p.add_argument("--no-plot", action="store_true",
                    help="do not write the sensitivity plot (PNG and SVG beside the assay file)")
+    p.add_argument("--report", metavar="HTML",
+                   help="also write an offline HTML report of the fit and the fitted assay")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
 
@@ -525,9 +527,12 @@ def _run_calibrate(args):
             raise InputError(f"--fix gives {name!r} twice")
         fixed[name] = value
     check_output_path(args.out)
+    if args.report:
+        check_output_path(args.report)
     plots = {} if args.no_plot else plot_paths(args.out)
     for path in plots.values():
         check_output_path(path)
+    run = None
     if args.validation:
         data = ValidationData.read(args.validation)
         result = calibrate_validation(data, args.model, fixed, level=args.level,
@@ -542,12 +547,19 @@ def _run_calibrate(args):
     if plots:
         write_plots(result, args.out, fig)
     written = [args.out] + [str(p) for p in plots.values()]
+    if args.report:
+        from .report import write_report
+        write_report(args.report, run=run if not args.validation else None, assay=result.assay,
+                     calibration=result, title="bayespool calibration report")
+        written.append(args.report)
     if args.json:
         for w in result.warnings:
             _note(args, w)
         summary = result.summary()
         summary["out"] = args.out
         summary["plots"] = {k: str(v) for k, v in plots.items()}
+        if args.report:
+            summary["report"] = args.report
         print(json.dumps(summary, indent=2))
     else:
         print(result.text())

@@ -204,3 +204,43 @@ def test_invalid_rows_are_skipped_with_a_note(cli, tmp_path):
     assert r.code == 0, r.err
     assert "1 invalid readout(s) skipped" in r.out
     assert Assay.read(tmp_path / "a.toml").details["rows_skipped"] == 1
+
+
+def test_report_and_plot_paths_checked_before_any_work(cli, tmp_path, validation):
+    out = tmp_path / "assay.toml"
+    r = cli("calibrate", "--validation", validation, "--out", out, "--report",
+            tmp_path / "missing" / "r.html")
+    assert r.code == 2 and "does not exist" in r.err
+    assert not out.exists()
+    r = cli("calibrate", "--validation", validation, "--out", out, "--report",
+            tmp_path / "r.html", "--model", "dilution")
+    assert r.code == 0, r.err
+    html = (tmp_path / "r.html").read_text(encoding="utf-8")
+    assert 'id="calibration"' in html and "not a diagnostic device" in html
+    assert "profile likelihood" in html
+
+
+def test_table_model_without_single_positive_cells_warns_and_decodes(cli, tmp_path):
+    # pool size 8 validated only with 2 positives: its entry is used from 1 positive up, with a
+    # warning; the written table covers 1 positive so decode accepts it
+    rows = ([(8, 0, "negative")] * 40 + [(4, 1, "positive")] * 18 + [(4, 1, "negative")] * 2
+            + [(8, 2, "positive")] * 15 + [(8, 2, "negative")] * 5)
+    path = write_csv(tmp_path / "v.csv", rows, HEADER)
+    out = tmp_path / "assay.toml"
+    r = cli("calibrate", "--validation", path, "--model", "table", "--out", out, "--no-plot")
+    assert r.code == 0, r.err
+    assert "pool size 8 has no validation readouts with 1 positive" in r.out
+    entries = {(k, d): v for k, d, v in Assay.read(out).sensitivity.entries}
+    assert set(entries) == {(4, 1), (8, 1)}
+    assert entries[(8, 1)] == pytest.approx(0.75, abs=1e-9)  # 15 of 20 (maximum likelihood)
+    assert entries[(4, 1)] == pytest.approx(0.9, abs=1e-9)   # 18 of 20
+
+
+def test_calibration_demo_writes_its_invented_files(tmp_path):
+    from bayespool.demo import run_calibration_demo
+    result = run_calibration_demo(tmp_path)
+    for name in ("invented_validation.csv", "calibrated_assay.toml",
+                 "calibrated_assay-curve.png", "calibrated_assay-curve.svg"):
+        assert (tmp_path / name).exists()
+    assert Assay.read(tmp_path / "calibrated_assay.toml").details["method"] == "validation"
+    assert result.model in ("constant", "dilution", "table")

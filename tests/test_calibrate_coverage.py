@@ -6,7 +6,6 @@ intervals at least nominally (Clopper & Pearson 1934). With 300 sets the binomia
 a 95% coverage is 1.3 points, so 92% to 98% is a band of more than two standard errors each side.
 """
 import numpy as np
-import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
 from bayespool.calibrate import calibrate_validation

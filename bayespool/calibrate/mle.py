@@ -135,9 +135,15 @@ def standard_errors(info: np.ndarray) -> np.ndarray:
     if n == 0:
         return np.zeros(0)
     sym = 0.5 * (info + info.T)
-    if not np.all(np.isfinite(sym)) or np.linalg.eigvalsh(sym).min() <= 0:
+    if not np.all(np.isfinite(sym)):
         return np.full(n, np.inf)
-    var = np.diag(np.linalg.inv(sym))
+    w = np.linalg.eigvalsh(sym)
+    if w.min() <= 1e-13 * max(w.max(), 1e-300):
+        return np.full(n, np.inf)
+    try:
+        var = np.diag(np.linalg.inv(sym))
+    except np.linalg.LinAlgError:
+        return np.full(n, np.inf)
     return np.sqrt(np.where(var > 0, var, np.inf))
 
 
