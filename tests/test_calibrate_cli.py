@@ -244,3 +244,13 @@ def test_calibration_demo_writes_its_invented_files(tmp_path):
         assert (tmp_path / name).exists()
     assert Assay.read(tmp_path / "calibrated_assay.toml").details["method"] == "validation"
     assert result.model in ("constant", "dilution", "table")
+
+
+def test_fixed_values_that_rule_out_the_data_exit_2(cli, tmp_path, validation):
+    r = cli("calibrate", "--validation", validation, "--fix", "specificity=1", "--out",
+            tmp_path / "a.toml")
+    assert r.code == 2 and "specificity fixed at 1" in r.err
+    r = cli("calibrate", "--validation", validation, "--model", "constant", "--fix",
+            "sensitivity=1", "--out", tmp_path / "a.toml")
+    assert r.code == 2 and "can explain the readouts" in r.err
+    assert not (tmp_path / "a.toml").exists()

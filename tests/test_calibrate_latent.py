@@ -181,3 +181,12 @@ def test_pools_with_follow_up_match_the_exact_enumeration():
         with_prior = dataclasses.replace(run, prior=np.full(run.n_samples, prevalence))
         _, log_z, _, _ = decode_exact(with_prior, ptr, ll, components(run))
         assert ev.loglik(assay, prevalence) == pytest.approx(log_z.sum(), abs=1e-9)
+
+
+def test_fixed_perfect_assay_that_the_data_contradict_is_an_input_error():
+    from bayespool.errors import InputError
+    rng = np.random.default_rng(13)
+    layout, readouts, _ = dorfman_runs(rng, 400, [5], 0.1, Assay(0.9, ConstantSensitivity(0.7)))
+    with pytest.raises(InputError, match="rules out every status vector"):
+        calibrate_runs(run_of(layout, readouts), "constant",
+                       fixed={"sensitivity": 1.0, "specificity": 1.0})

@@ -93,6 +93,10 @@ def fit_sensitivity(cells: Cells, model="dilution", fixed: dict | None = None,
                   for s in fam.starts(cells.k, cells.d, cells.trials, cells.detected)]
     optimum = maximize(objective, starts, space.bounds, jac=True, fisher=objective.fisher,
                        local=objective.local)
+    if not np.isfinite(optimum.loglik):
+        raise InputError(f"no {fam.name} sensitivity with the fixed values "
+                         f"({', '.join(f'{k}={v:g}' for k, v in space.fixed.items())}) can explain "
+                         "the readouts (a sensitivity of 1 with missed detections?)", source)
     return SensitivityFit(fam, space, cells, objective, optimum, list(starts))
 
 
@@ -195,6 +199,9 @@ def specificity_estimate(data: ValidationData, fixed, level: float):
         if not 0.0 < sp <= 1.0:
             raise InputError(f"specificity = {fixed!r} must be in (0, 1]")
         ll = float(xlogy(neg0, sp) + xlogy(n0 - neg0, 1.0 - sp))
+        if not np.isfinite(ll):
+            raise InputError(f"specificity fixed at {sp:g}, but {n0 - neg0} readout(s) of pools "
+                             "without a positive member read positive", data.source)
         return sp, sp, sp, "fixed", ll, False
     if n0 == 0:
         raise InputError("the validation data have no readouts of pools without a positive member "

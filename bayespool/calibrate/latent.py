@@ -112,7 +112,8 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
     ``model`` is ``constant``, ``dilution``, ``table`` (one sensitivity per pool size) or ``best``
     (smallest AIC). ``fixed`` keeps parameters at given values, e.g. ``{"se_max": 1.0}`` or
     ``{"specificity": 0.998}``, which is how a design that cannot identify everything can still
-    be used. Every connected group of specimens must be small enough for the exact decoder.
+    be used. A pool with the individual follow-up of its members may be of any size; other
+    groups of specimens linked through shared pools must stay within the exact decoder's limit.
     """
     if intervals not in INTERVALS:
         raise InputError(f"unknown interval method {intervals!r} (choose profile or wald)")
@@ -236,4 +237,9 @@ def _fit_run(run: Run, model: str, fixed, read, evidence: Evidence):
     objective = RunLikelihood(run, fam, space, evidence)
     starts = [space.free_from_natural({**s, **space.fixed}) for s in _starts(run, fam, read)]
     opt = maximize(objective, starts, space.bounds, jac=False)
+    if opt.loglik <= -PENALTY / 2:
+        raise InputError("no parameter values can explain the readouts with the fixed values "
+                         f"({', '.join(f'{k}={v:g}' for k, v in space.fixed.items())}): a "
+                         "sensitivity or specificity fixed at 1 rules out every status vector",
+                         run.sources.get("readouts"))
     return fam, space, opt, objective
