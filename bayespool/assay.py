@@ -12,7 +12,6 @@ from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.special import xlogy
 
 from .errors import InputError
 from .io import read_toml, write_text
@@ -38,6 +37,15 @@ def _positive(value, name: str, source: str | None) -> float:
     if isinstance(value, bool) or not math.isfinite(v) or v <= 0.0:
         raise InputError(f"{name} = {value!r} must be a positive number", source)
     return v
+
+
+def _xlogy(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """x * log(y) with 0 * log(0) = 0 (a count of zero readouts contributes nothing)."""
+    out = np.zeros(np.broadcast(x, y).shape)
+    nz = x != 0
+    with np.errstate(divide="ignore"):
+        out[nz] = x[nz] * np.log(y[nz])
+    return out
 
 
 def _get(table: dict, key: str, where: str, source: str | None):
@@ -239,7 +247,7 @@ class Assay:
         d = np.arange(total, dtype=np.int64) - ptr[owner]
         kk = k[owner]
         p_pos = self.positive_probability(kk, d)
-        values = xlogy(npos[owner], p_pos) + xlogy(nneg[owner], 1.0 - p_pos)
+        values = _xlogy(npos[owner], p_pos) + _xlogy(nneg[owner], 1.0 - p_pos)
         return ptr, values
 
     # ---- the file

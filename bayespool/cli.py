@@ -69,14 +69,23 @@ def _note(args, text: str) -> None:
 
 # ---- decode
 def _add_decode(sub):
-    from .defaults import METHODS
+    from .defaults import BP_DAMPING, BP_MAX_SWEEPS, BP_TOLERANCE, METHODS
     p = sub.add_parser("decode", help="per-sample probabilities and calls from pooled readouts",
                        description="Posterior probability that each sample is positive, and a "
                        "call, from pooled readouts. " + CAUTION)
     _add_run_inputs(p)
     p.add_argument("--method", choices=METHODS, default="auto",
-                   help="decoder (default: %(default)s: exact where every group of linked samples "
-                   "is small enough)")
+                   help="decoder (default: %(default)s: exact enumeration for small groups of linked "
+                   "samples, belief propagation for large ones)")
+    bp = p.add_argument_group("belief propagation (--method bp, and auto on large groups)")
+    bp.add_argument("--max-sweeps", type=int, default=BP_MAX_SWEEPS, metavar="N",
+                    help="stop after N sweeps over the pools (default: %(default)s)")
+    bp.add_argument("--damping", type=_probability, default=BP_DAMPING, metavar="D",
+                    help="keep a fraction D of each old message, 0 <= D < 1; damping helps when "
+                    "the iteration oscillates (default: %(default)s)")
+    bp.add_argument("--tolerance", type=_probability, default=BP_TOLERANCE, metavar="TOL",
+                    help="converged when no message (log-odds) changes by TOL or more in a sweep "
+                    "(default: %(default)s)")
     p.add_argument("--out", required=True, metavar="CSV", help="posterior: sample,probability,call,...")
     p.add_argument("--report", metavar="HTML", help="also write an offline HTML report")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
@@ -91,7 +100,8 @@ def _run_decode(args):
         check_output_path(args.report)
     run, assay = _load_inputs(args)
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
-                  positive_above=args.positive_above, seed=args.seed)
+                  positive_above=args.positive_above, seed=args.seed, damping=args.damping,
+                  tolerance=args.tolerance, max_sweeps=args.max_sweeps)
     write_frame(post.to_frame(), args.out)
     if args.report:
         from .report import write_report
@@ -447,6 +457,117 @@ def _print_sweep(result, table) -> None:
     print("(estimate ± Monte Carlo standard error) " + CAUTION)
 
 
+# ---- calibrate
+def _fixed_value(text: str):
+    name, sep, value = text.partition("=")
+    if not sep or not name.strip():
+        raise argparse.ArgumentTypeError(f"expected NAME=VALUE, got {text!r}")
+    try:
+        return name.strip(), float(value)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"the value of {name.strip()!r} must be a number, got "
+                                         f"{value!r}") from None
+
+
+def _add_calibrate(sub):
+    p = sub.add_parser("calibrate", help="fit the assay (specificity, sensitivity and its fall "
+                       "with dilution) from validation runs or past runs",
+                       description="Fit the assay model and write an assay file for decode and "
+                       "plan. From validation runs with known truth (--validation), or from past "
+                       "runs whose truth is latent (--layout and --readouts; individual follow-up "
+                       "tests are pools of one). " + CAUTION)
+    src = p.add_argument_group("data (one of)")
+    src.add_argument("--validation", metavar="CSV",
+                     help="pool_size,positives,result: one row per readout of a pool whose number "
+                     "of positive members is known")
+    src.add_argument("--layout", metavar="CSV", help="past runs: pool,sample memberships")
+    src.add_argument("--readouts", metavar="CSV", help="past runs: pool,result readouts")
+    src.add_argument("--samples", metavar="CSV", help="past runs: sample[,plate,well] (optional)")
+    p.add_argument("--model", choices=("constant", "dilution", "table", "best"), default="best",
+                   help="sensitivity family (default: %(default)s, the smallest AIC)")
+    p.add_argument("--out", required=True, metavar="TOML", help="assay file to write")
+    p.add_argument("--fix", type=_fixed_value, action="append", default=[], metavar="NAME=VALUE",
+                   help="keep a parameter at a value instead of fitting it, e.g. se_max=1 or "
+                   "specificity=0.998 (repeatable)")
+    p.add_argument("--intervals", choices=("profile", "wald"), default="profile",
+                   help="interval method for fitted parameters (default: %(default)s likelihood; "
+                   "the specificity from validation always has the exact Clopper-Pearson interval)")
+    p.add_argument("--level", type=_probability, default=0.95, metavar="L",
+                   help="confidence level of the intervals (default: %(default)s)")
+    p.add_argument("--gof-draws", type=int, default=0, metavar="N",
+                   help="validation: also a parametric bootstrap p-value for the goodness of fit "
+                   "from N refitted simulations (default: none)")
+    p.add_argument("--seed", type=int, default=None, metavar="N",
+                   help="random seed for the bootstrap and the plot's band")
+    p.add_argument("--no-plot", action="store_true",
+                   help="do not write the sensitivity plot (PNG and SVG beside the assay file)")
+    p.add_argument("--report", metavar="HTML",
+                   help="also write an offline HTML report of the fit and the fitted assay")
+    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    return p
+
+
+def _run_calibrate(args):
+    from .io import check_output_path
+    from .calibrate import calibrate_runs, calibrate_validation
+    from .calibrate.plot import figure, plot_paths, write_plots
+    from .calibrate.validation import ValidationData
+    from .run import Run
+    if args.validation and (args.layout or args.readouts or args.samples):
+        raise InputError("give either --validation or --layout/--readouts, not both")
+    if not args.validation and not (args.layout and args.readouts):
+        raise InputError("give --validation, or --layout and --readouts of past runs")
+    if args.gof_draws < 0:
+        raise InputError(f"--gof-draws must be >= 0, got {args.gof_draws}")
+    if args.gof_draws and not args.validation:
+        raise InputError("--gof-draws applies to validation data only")
+    fixed = {}
+    for name, value in args.fix:
+        if name in fixed:
+            raise InputError(f"--fix gives {name!r} twice")
+        fixed[name] = value
+    check_output_path(args.out)
+    if args.report:
+        check_output_path(args.report)
+    plots = {} if args.no_plot else plot_paths(args.out)
+    for path in plots.values():
+        check_output_path(path)
+    run = None
+    if args.validation:
+        data = ValidationData.read(args.validation)
+        result = calibrate_validation(data, args.model, fixed, level=args.level,
+                                      intervals=args.intervals, gof_draws=args.gof_draws,
+                                      seed=args.seed)
+    else:
+        run = Run.read(args.layout, args.readouts, args.samples)
+        result = calibrate_runs(run, args.model, fixed, level=args.level,
+                                intervals=args.intervals)
+    fig = figure(result) if plots else None
+    result.assay.write(args.out)
+    if plots:
+        write_plots(result, args.out, fig)
+    written = [args.out] + [str(p) for p in plots.values()]
+    if args.report:
+        from .report import write_report
+        write_report(args.report, run=run if not args.validation else None, assay=result.assay,
+                     calibration=result, title="bayespool calibration report")
+        written.append(args.report)
+    if args.json:
+        for w in result.warnings:
+            _note(args, w)
+        summary = result.summary()
+        summary["out"] = args.out
+        summary["plots"] = {k: str(v) for k, v in plots.items()}
+        if args.report:
+            summary["report"] = args.report
+        print(json.dumps(summary, indent=2))
+    else:
+        print(result.text())
+        print(f"wrote {', '.join(written)}")
+        print(CAUTION)
+    return 0
+
+
 # ---- plan
 def _add_plan(sub):
     from .defaults import METHODS
@@ -530,6 +651,7 @@ COMMANDS = {
     "demo": (_add_demo, _run_demo),
     "design": (_add_design, _run_design),
     "simulate": (_add_simulate, _run_simulate),
+    "calibrate": (_add_calibrate, _run_calibrate),
     "plan": (_add_plan, _run_plan),
 }
 

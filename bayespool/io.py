@@ -7,12 +7,14 @@ file beside the target and renamed into place, so a failed run never touches an 
 from __future__ import annotations
 
 import contextlib
+import csv
 import io
 import os
 import re
 import tempfile
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from .errors import InputError
@@ -82,11 +84,13 @@ def read_table(path: str | os.PathLike, required: list[str], what: str) -> Table
     text = _check_utf8(path, raw)
     if text.startswith("\ufeff"):
         text = text[1:]
-    if text.strip() == "":
+        raw = raw[len("\ufeff".encode()):]
+    if not text or text.isspace():
         raise InputError(f"{what} file is empty (expected a header with {', '.join(required)})", path)
-    try:
-        frame = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False, na_filter=False,
-                            skipinitialspace=True)
+    del text
+    try:  # bytes and object columns: markedly faster than text and string columns on big files
+        frame = pd.read_csv(io.BytesIO(raw), dtype=object, encoding="utf-8",
+                            keep_default_na=False, na_filter=False, skipinitialspace=True)
     except pd.errors.ParserError as exc:
         match = re.search(r"line (\d+)", str(exc))
         line = int(match.group(1)) if match else None
@@ -101,9 +105,89 @@ def read_table(path: str | os.PathLike, required: list[str], what: str) -> Table
     dup = [c for c in set(header) if header.count(c) > 1]
     if dup:
         raise InputError(f"column {dup[0]!r} appears twice in the header", path, 1)
-    for c in required:
-        frame[c] = frame[c].str.strip()
+    if _may_need_strip(raw):
+        for c in required:
+            frame[c] = frame[c].str.strip()
     return Table(frame, path, header)
+
+
+class CodedTable(Table):
+    """Two ID columns of a CSV file read as integer codes (first appearance order) and the distinct
+    IDs, as ``pd.factorize`` would give them; ``frame`` (those two columns as strings) is built only
+    if asked for."""
+
+    def __init__(self, path: str, header: list[str], codes: dict, ids: dict):
+        self.path, self.header, self.codes, self.ids = path, header, codes, ids
+        self._frame = None
+
+    @property
+    def frame(self) -> pd.DataFrame:
+        if self._frame is None:
+            self._frame = pd.DataFrame({c: self.ids[c][self.codes[c]] for c in self.codes})
+        return self._frame
+
+    def __len__(self) -> int:
+        return len(next(iter(self.codes.values())))
+
+    def value(self, column: str, row: int) -> str:
+        return str(self.ids[column][self.codes[column][row]])
+
+
+FAST_FROM_BYTES = 1 << 20  # files at least this large may take the direct path of read_id_table
+
+
+def read_id_table(path: str | os.PathLike, columns: tuple[str, str], what: str) -> Table:
+    """Read a CSV file whose two ``columns`` are IDs, for factorising them.
+
+    Large plain files (ASCII, no quote characters, no whitespace but line ends, the same number of
+    fields on every line, distinct header names) are scanned straight into codes (numba), which
+    is several times faster than parsing strings and factorising them on millions of rows; any
+    other file is read by :func:`read_table` (the same values, and all its checks and errors).
+    """
+    path = str(path)
+    p = Path(path)
+    if p.is_file() and p.stat().st_size >= FAST_FROM_BYTES:
+        raw = p.read_bytes()
+        table = _scan_ids(path, raw, columns)
+        if table is not None:
+            return table
+    return read_table(path, list(columns), what)
+
+
+def _scan_ids(path: str, raw: bytes, columns: tuple[str, str]):
+    if _may_need_strip(raw) or b'"' in raw or b"\x00" in raw:
+        return None
+    head_end = raw.find(b"\n")
+    if head_end <= 0:
+        return None
+    header = raw[:head_end].decode("ascii").split(",")
+    if len(set(header)) != len(header) or "" in header or not set(columns) <= set(header):
+        return None
+    from .csvscan import factorize_ranges, split_fields
+    data = np.frombuffer(raw, dtype=np.uint8)
+    lines = raw.count(b"\n") + 1
+    ranges = [np.empty(lines, dtype=np.int64) for _ in range(4)]
+    col_a, col_b = header.index(columns[0]), header.index(columns[1])
+    rows = split_fields(data, head_end + 1, len(header), col_a, col_b, *ranges)
+    if rows <= 0:
+        return None
+    codes, ids = {}, {}
+    for name, (starts, ends) in ((columns[0], ranges[:2]), (columns[1], ranges[2:])):
+        c = np.empty(rows, dtype=np.int32)
+        distinct = factorize_ranges(data, starts, ends, rows, c).tobytes().decode("ascii")
+        codes[name] = c
+        ids[name] = np.array(distinct.split("\n")[:-1], dtype=object)
+    return CodedTable(path, header, codes, ids)
+
+
+_SPACE_BYTES = (b" ", b"\t", b"\r", b"\x0b", b"\x0c", b"\x1c", b"\x1d", b"\x1e", b"\x1f")
+
+
+def _may_need_strip(raw: bytes) -> bool:
+    """False when no value can have surrounding whitespace: ASCII text whose only whitespace is
+    the newline ending each line (then stripping every value, which costs seconds on millions of
+    rows, changes nothing)."""
+    return not raw.isascii() or any(b in raw for b in _SPACE_BYTES)
 
 
 def read_toml(path: str | os.PathLike, what: str) -> dict:
@@ -154,9 +238,55 @@ def atomic_output(path: str | os.PathLike, mode: str = "w"):
 
 
 def write_frame(frame: pd.DataFrame, path: str | os.PathLike, float_format: str = "%.10g") -> None:
-    """Write a DataFrame as CSV, atomically."""
+    """Write a DataFrame as CSV, atomically.
+
+    Frames of plain columns (float64, integer, bool, object or string) are formatted column by
+    column and written by the csv module directly: the same bytes as ``DataFrame.to_csv`` (which
+    uses that writer too), in about half the time on a million rows. Other frames go through pandas.
+    """
     with atomic_output(path) as fh:
-        frame.to_csv(fh, index=False, float_format=float_format, lineterminator="\n")
+        cells = _plain_cells(frame, float_format)
+        if cells is None:
+            frame.to_csv(fh, index=False, float_format=float_format, lineterminator="\n")
+        else:
+            writer = csv.writer(fh, lineterminator="\n")
+            writer.writerow(frame.columns)
+            writer.writerows(zip(*cells))
+
+
+def _plain_cells(frame: pd.DataFrame, float_format: str):
+    """Per column, the values as ``to_csv`` writes them (NaN and None as ''); None if some column
+    has another kind of data (dates, categories, ...) or the frame has a non-default header."""
+    if (not len(frame.columns) or not all(isinstance(c, str) for c in frame.columns)
+            or frame.columns.has_duplicates):
+        return None
+    cells = []
+    for name in frame.columns:
+        col = frame[name]
+        dtype = col.dtype
+        if dtype == np.float64:
+            values = col.to_numpy()
+            if len(values) and (values == values[0]).all():  # e.g. one prior for every sample
+                cells.append([float_format % values[0]] * len(values))
+                continue
+            text = [float_format % v for v in values.tolist()]
+            missing = np.flatnonzero(np.isnan(values))
+            for r in missing.tolist():
+                text[r] = ""
+            cells.append(text)
+        elif dtype.kind in "iub" and isinstance(dtype, np.dtype):
+            cells.append(col.to_numpy().tolist() if dtype.kind != "b" else
+                         ["True" if v else "False" for v in col.to_numpy().tolist()])
+        elif dtype == object or isinstance(dtype, pd.StringDtype):
+            values = col.to_numpy(dtype=object)
+            missing = pd.isna(values)
+            if missing.any():
+                values = values.copy()
+                values[missing] = ""
+            cells.append(values.tolist())
+        else:
+            return None
+    return cells
 
 
 def write_text(text: str, path: str | os.PathLike) -> None:

@@ -15,7 +15,7 @@ import pandas as pd
 
 from .defaults import PREVALENCE
 from .errors import InputError
-from .io import Table, read_table
+from .io import CodedTable, Table, read_id_table, read_table
 
 POSITIVE_WORDS = ("positive", "pos", "1")
 NEGATIVE_WORDS = ("negative", "neg", "0")
@@ -35,12 +35,35 @@ def check_prevalence(value, name: str = "--prevalence") -> float:
     return v
 
 
+_COUNTING_SORT_FROM = 1 << 16  # pairs; below this a NumPy sort is as fast and needs no numba
+
+
 def csr(rows: np.ndarray, cols: np.ndarray, n_rows: int):
-    """CSR (ptr, indices) of the pairs (rows[i], cols[i]), stable in input order within a row."""
-    order = np.argsort(rows, kind="stable")
+    """CSR (ptr, indices) of the pairs (rows[i], cols[i]), stable in input order within a row.
+
+    Large inputs take an O(n) counting sort (numba) instead of an O(n log n) stable argsort.
+    """
     ptr = np.zeros(n_rows + 1, dtype=np.int64)
     np.cumsum(np.bincount(rows, minlength=n_rows), out=ptr[1:])
-    return ptr, cols[order].astype(np.int32, copy=False)
+    if len(rows) < _COUNTING_SORT_FROM:
+        order = np.argsort(rows, kind="stable")
+        return ptr, cols[order].astype(np.int32, copy=False)
+    from .incidence import scatter_rows
+    out = np.empty(len(rows), dtype=np.int32)
+    scatter_rows(np.asarray(rows), np.asarray(cols), ptr, out)
+    return ptr, out
+
+
+def _first_repeated_pair(rows, cols, n_rows: int, n_cols: int) -> int:
+    """Row of the first (pool, sample) pair that repeats an earlier one, or -1."""
+    if len(rows) < _COUNTING_SORT_FROM:
+        pair = rows.astype(np.int64) * max(n_cols, 1) + cols
+        dup = np.flatnonzero(pd.Series(pair).duplicated(keep="first").to_numpy())
+        return int(dup[0]) if len(dup) else -1
+    from .incidence import first_repeated_pair
+    ptr = np.zeros(n_rows + 1, dtype=np.int64)
+    np.cumsum(np.bincount(rows, minlength=n_rows), out=ptr[1:])
+    return int(first_repeated_pair(rows, cols, ptr, n_cols))
 
 
 @dataclass(eq=False)
@@ -126,7 +149,7 @@ class Run:
     @classmethod
     def read(cls, layout, readouts=None, samples=None, prevalence: float = PREVALENCE) -> "Run":
         """Read and validate the layout, readouts and samples files (interface.md)."""
-        lay = read_table(layout, ["pool", "sample"], "layout")
+        lay = read_id_table(layout, ("pool", "sample"), "layout")
         rd = read_table(readouts, ["pool", "result"], "readouts") if readouts is not None else None
         sm = read_table(samples, ["sample"], "samples") if samples is not None else None
         run = cls.from_tables(lay, rd, sm, prevalence)
@@ -157,20 +180,25 @@ class Run:
     @classmethod
     def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence) -> "Run":
         prevalence = check_prevalence(prevalence)
-        lf = lay.frame
-        for col in ("pool", "sample"):
-            blank = np.flatnonzero((lf[col] == "").to_numpy())
-            if len(blank):
-                raise lay.error(f"empty {col} ID", blank[0], col)
-        dup = lf.duplicated(["pool", "sample"], keep="first").to_numpy()
-        if dup.any():
-            r = int(np.flatnonzero(dup)[0])
-            raise lay.error(f"sample {lf['sample'].iat[r]!r} appears twice in pool "
-                            f"{lf['pool'].iat[r]!r}", r, "sample")
-        pool_codes, pool_ids = pd.factorize(lf["pool"], sort=False)
-        sample_codes, sample_ids = pd.factorize(lf["sample"], sort=False)
+        # IDs are factorised once (a large plain file comes already coded); every later check
+        # works on the integer codes
+        if isinstance(lay, CodedTable):
+            pool_codes, pool_ids = lay.codes["pool"], lay.ids["pool"]
+            sample_codes, sample_ids = lay.codes["sample"], lay.ids["sample"]
+        else:
+            pool_codes, pool_ids = pd.factorize(lay.frame["pool"], sort=False)
+            sample_codes, sample_ids = pd.factorize(lay.frame["sample"], sort=False)
         sample_ids = np.asarray(sample_ids, dtype=object)
         pool_ids = np.asarray(pool_ids, dtype=object)
+        for col, codes, ids in (("pool", pool_codes, pool_ids),
+                                ("sample", sample_codes, sample_ids)):
+            blank = np.flatnonzero(ids == "")
+            if len(blank):
+                raise lay.error(f"empty {col} ID", int(np.argmax(codes == blank[0])), col)
+        r = _first_repeated_pair(pool_codes, sample_codes, len(pool_ids), len(sample_ids))
+        if r >= 0:
+            raise lay.error(f"sample {sample_ids[sample_codes[r]]!r} appears twice in pool "
+                            f"{pool_ids[pool_codes[r]]!r}", r, "sample")
 
         # samples file: priors and plate map; samples it adds to the layout are untested
         prior_values = None

@@ -8,8 +8,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.sparse import coo_matrix
-from scipy.sparse.csgraph import connected_components
+from numba import njit
 
 from ..run import Run, csr
 
@@ -44,24 +43,47 @@ def read_pools(run: Run) -> np.ndarray:
     return (run.n_positive + run.n_negative) > 0
 
 
+@njit(cache=True)
+def _union_find_labels(pool_ptr, pool_members, read, n_samples):
+    """Component label of every sample, numbered by first appearance (union-find with halving)."""
+    parent = np.arange(n_samples)
+    for t in range(len(pool_ptr) - 1):
+        if not read[t] or pool_ptr[t + 1] == pool_ptr[t]:
+            continue
+        a = pool_members[pool_ptr[t]]
+        while parent[a] != a:
+            parent[a] = parent[parent[a]]
+            a = parent[a]
+        for j in range(pool_ptr[t] + 1, pool_ptr[t + 1]):
+            b = pool_members[j]
+            while parent[b] != b:
+                parent[b] = parent[parent[b]]
+                b = parent[b]
+            if a != b:
+                if a < b:
+                    parent[b] = a
+                else:
+                    parent[a] = b
+                    a = b
+    label = np.full(n_samples, -1, dtype=np.int32)
+    root_label = np.full(n_samples, -1, dtype=np.int32)
+    n_comp = 0
+    for i in range(n_samples):
+        r = i
+        while parent[r] != r:
+            r = parent[r]
+        if root_label[r] < 0:
+            root_label[r] = n_comp
+            n_comp += 1
+        label[i] = root_label[r]
+    return label, n_comp
+
+
 def components(run: Run) -> Components:
-    """Connected components of samples linked through read pools."""
-    n, T = run.n_samples, run.n_pools
+    """Connected components of samples linked through read pools (numbered by first appearance)."""
+    n = run.n_samples
     read = read_pools(run)
-    owner = np.repeat(np.arange(T, dtype=np.int64), run.pool_size)
-    keep = read[owner]
-    rows = run.pool_members[keep].astype(np.int64)
-    cols = n + owner[keep]
-    graph = coo_matrix((np.ones(len(rows), dtype=np.int8), (rows, cols)), shape=(n + T, n + T))
-    _, labels = connected_components(graph, directed=False)
-    # renumber so that component ids follow samples' first appearance
-    s_lab = labels[:n]
-    uniq, first = np.unique(s_lab, return_index=True)
-    order = np.argsort(first, kind="stable")
-    remap = np.empty(labels.max() + 1 if len(labels) else 0, dtype=np.int64)
-    remap[uniq[order]] = np.arange(len(uniq))
-    sample_label = remap[s_lab].astype(np.int32)
-    n_comp = len(uniq)
+    sample_label, n_comp = _union_find_labels(run.pool_ptr, run.pool_members, read, n)
     sptr, samples = csr(sample_label.astype(np.int64), np.arange(n, dtype=np.int32), n_comp)
     read_idx = np.flatnonzero(read)
     # a read pool's component is that of any member
