@@ -204,3 +204,18 @@ def test_untested_specimens_are_never_decided_by_their_prior():
     result = plan(run, NOISY, tests=8, seed=0)
     assert not result.decided and result.undecided == 64
     assert len(np.unique(result.pool_members)) == 64
+
+
+def test_tests_within_a_group_above_the_link_limit_are_allowed():
+    # a read pool of 25 is one linked group above 22: tests inside it add no specimen to it
+    run = positive_pool_run(25, extra=10)
+    post = decode(run, NOISY, method="bp")
+    notes_plan = plan(run, NOISY, post, tests=6, seed=1)
+    assert notes_plan.n_tests > 0
+    assert any("marginals" in n for n in notes_plan.notes)
+    from bayespool.decode.graph import components
+    comps = components(run)
+    big = comps.sample_label[0]
+    for j in range(notes_plan.n_tests):
+        labels = set(comps.sample_label[notes_plan.members(j)])
+        assert labels == {big} or big not in labels

@@ -11,7 +11,8 @@ Wolsey & Fisher 1978).
 Specimens linked through read pools (decoding components) are independent a posteriori; the tests of
 the batch join them into groups, and only the tests within a group need a joint outcome table.
 Limits are checked when a candidate reaches the top: specimen material left, the size of the linked
-group that reading it would make (the decoder's enumeration limit), and tests per group.
+group that reading it would make by joining groups (the decoder's enumeration limit; tests within
+one existing group are always allowed), and tests per group.
 """
 from __future__ import annotations
 
@@ -41,9 +42,11 @@ class Batch:
 
 @njit(cache=True)
 def linked_sizes(ptr, members, label, comp_size):
-    """Per candidate, the number of specimens in the components its members belong to."""
+    """Per candidate, the number of specimens in the components its members belong to, and the
+    number of those components."""
     n_cand = len(ptr) - 1
     out = np.zeros(n_cand, dtype=np.int64)
+    n_comp = np.zeros(n_cand, dtype=np.int64)
     mark = np.zeros(len(comp_size), dtype=np.int64)
     for c in range(n_cand):
         s = 0
@@ -52,8 +55,9 @@ def linked_sizes(ptr, members, label, comp_size):
             if mark[g] != c + 1:
                 mark[g] = c + 1
                 s += comp_size[g]
+                n_comp[c] += 1
         out[c] = s
-    return out
+    return out, n_comp
 
 
 class _Groups:
@@ -121,9 +125,9 @@ def select_batch(xt, w, cands, label, comp_size, qtab, n_tests: int, draws_left:
     """
     n_draws = xt.shape[1]
     p0, g0 = single_information(xt, w, cands.ptr, cands.members, qtab)
-    linked = linked_sizes(cands.ptr, cands.members, label, comp_size)
+    linked, n_linked = linked_sizes(cands.ptr, cands.members, label, comp_size)
     material = cands.uses_material() | replicates_use_material
-    ok = (g0 > _EPS) & (linked <= max_linked)
+    ok = (g0 > _EPS) & ((linked <= max_linked) | (n_linked == 1))
     heap = [(-float(g0[c]), int(c)) for c in np.flatnonzero(ok)]
     heapq.heapify(heap)
     stamp = np.zeros(len(cands), dtype=np.int64)
@@ -145,7 +149,8 @@ def select_batch(xt, w, cands, label, comp_size, qtab, n_tests: int, draws_left:
         if material[c] and (draws_left[mem] < 1).any():
             continue
         roots = groups.roots(label[mem])
-        if groups.size[roots].sum() > max_linked or groups.tests[roots].sum() >= MAX_GROUP_TESTS:
+        if ((len(roots) > 1 and groups.size[roots].sum() > max_linked)
+                or groups.tests[roots].sum() >= MAX_GROUP_TESTS):
             continue
         readout_probabilities(xt, mem, qtab, q)
         fresh = groups.changed[roots].max() <= stamp[c]

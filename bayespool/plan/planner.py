@@ -75,10 +75,11 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
     number or one per specimen; a ``draws_left`` column of the samples file sets it per specimen.
     Replicate reads re-use an existing pool's mix and draw nothing, unless
     ``replicates_use_material`` (each reading takes a fresh aliquot of every member). ``max_linked``
-    bounds the group of specimens that reading a planned pool links together (so the next decode
-    stays exact). ``min_information``: stop when the best remaining test is expected to tell fewer
-    bits; ``relative_information``: or fewer than that fraction of the first pick. ``draws``: joint
-    posterior draws (draws x specimens) to use instead of making them. ``seed``: reproducible draws.
+    bounds the group of specimens that a planned pool links together by joining groups (so the next
+    decode stays exact); tests within one existing group are always allowed. ``min_information``:
+    stop when the best remaining test is expected to tell fewer bits; ``relative_information``: or
+    fewer than that fraction of the first pick. ``draws``: joint posterior draws (draws x specimens)
+    to use instead of making them. ``seed``: reproducible draws.
     """
     tests = _whole(tests, "--tests", 1)
     max_pool_size = _whole(max_pool_size, "--max-pool-size", 1)
@@ -116,7 +117,7 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
                          run.sources.get("assay"))
     rng = np.random.default_rng(seed)
     if draws is None:
-        draws = posterior_draws(run, assay, posterior, n_draws, rng)
+        draws = posterior_draws(run, assay, posterior, n_draws, rng, notes)
     elif draws.ndim != 2 or draws.shape[1] != run.n_samples:
         raise InputError(f"draws must be an array of draws x {run.n_samples} specimens")
     xt = np.ascontiguousarray(np.asarray(draws, dtype=np.uint8).T)
