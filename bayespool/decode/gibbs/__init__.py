@@ -7,7 +7,7 @@ chains), ``backend`` (bounded thinned traces), ``diagnostics`` (R-hat, ESS, MCSE
 References: Knill, Schliep & Torney (1996), J. Comput. Biol. 3(3) (MCMC for pooling designs);
 Vehtari et al. (2021), Bayesian Analysis 16(2) (diagnostics).
 """
-from .decode import decode_gibbs, run_sampler, sample_components
+from .decode import Fallback, decode_gibbs, fallback, run_sampler, sample_components
 from .diagnostics import ess, ess_mean, mcse, rhat
 from .pool_swap import PoolSwapMove
 from .prevalence import PrevalenceMove
@@ -15,4 +15,4 @@ from .sampler import GibbsResult, GibbsSampler
 from .single_site import SingleSiteMove
 
 __all__ = ["GibbsSampler", "GibbsResult", "SingleSiteMove", "PoolSwapMove", "PrevalenceMove",
-           "decode_gibbs", "run_sampler", "sample_components", "rhat", "ess", "ess_mean", "mcse"]
+           "decode_gibbs", "fallback", "Fallback", "run_sampler", "sample_components", "rhat", "ess", "ess_mean", "mcse"]

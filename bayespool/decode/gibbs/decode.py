@@ -2,10 +2,12 @@
 
 ``decode_gibbs`` samples every specimen of the run jointly and returns a :class:`Posterior` with
 Monte Carlo errors, the number-of-positives distribution, ambiguity groups and kept draws.
-``sample_components`` samples only the given connected components, for a decoder (``auto``) that
-hands over the parts it could not settle; its result is combined by the caller.
+``sample_components`` samples only the given connected components, and ``fallback`` wraps it for a
+decoder (``auto``) that hands over the parts it could not settle; the caller combines the result.
 """
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -102,3 +104,33 @@ def sample_components(run, lik_ptr, loglik, comps, selected, seed=None, negative
         raise InputError("an unknown prevalence links every specimen; use --method gibbs")
     return run_sampler(run, lik_ptr, loglik, specimens, seed, negative_below, positive_above,
                        opts)
+
+
+@dataclass
+class Fallback:
+    """The sampler's answer for components another decoder handed over (see :func:`fallback`)."""
+
+    specimens: np.ndarray
+    probability: np.ndarray
+    mcse: np.ndarray
+    rhat: np.ndarray
+    ess: np.ndarray
+    count_distribution: np.ndarray
+    note: str
+    diagnostics: dict
+
+
+def fallback(run, lik_ptr, loglik, comps, selected, why: str, seed=None, negative_below=0.01,
+             positive_above=0.99, options=None) -> Fallback:
+    """Decode components ``selected`` by the sampler because ``why`` (e.g. "BP did not converge").
+
+    The hook for ``auto``: the caller writes ``probability`` (and ``mcse``) into its arrays at
+    ``specimens``, convolves ``count_distribution`` with its other parts, and shows ``note``.
+    """
+    result = sample_components(run, lik_ptr, loglik, comps, selected, seed, negative_below,
+                               positive_above, options)
+    full = summary_of(result, run, negative_below, positive_above)
+    note = (f"{why}: {len(result.specimens)} sample(s) in {len(selected)} group(s) decoded by the "
+            f"Gibbs sampler ({result.reason})")
+    return Fallback(result.specimens, result.probability, result.mcse, result.rhat, result.ess,
+                    result.count_distribution, note, full)
