@@ -15,10 +15,9 @@ from __future__ import annotations
 import numpy as np
 from scipy.fft import next_fast_len
 from scipy.special import ndtri
-from scipy.stats import rankdata
 from numba import njit
 
-__all__ = ["rhat", "ess", "ess_mean", "mcse"]
+__all__ = ["rhat", "ess", "ess_mean", "mcse", "rhat_ess"]
 
 
 def _as3d(draws) -> tuple[np.ndarray, bool]:
@@ -43,10 +42,28 @@ def split_chains(a: np.ndarray) -> np.ndarray:
     return np.concatenate([a[:, :half], a[:, a.shape[1] - half:]], axis=0)
 
 
+def average_ranks(a: np.ndarray) -> np.ndarray:
+    """Ranks 1..N down each column of a 2-D array, ties sharing their average rank."""
+    b = np.ascontiguousarray(np.asarray(a).T)  # sort along contiguous rows
+    N = b.shape[1]
+    idx = np.argsort(b, axis=1)
+    srt = np.take_along_axis(b, idx, axis=1)
+    pos = np.broadcast_to(np.arange(N), srt.shape)
+    starts = np.ones(srt.shape, dtype=bool)
+    starts[:, 1:] = srt[:, 1:] != srt[:, :-1]
+    ends = np.ones(srt.shape, dtype=bool)
+    ends[:, :-1] = starts[:, 1:]
+    first = np.maximum.accumulate(np.where(starts, pos, 0), axis=1)
+    last = np.minimum.accumulate(np.where(ends, pos, N)[:, ::-1], axis=1)[:, ::-1]
+    ranks = np.empty(srt.shape)
+    np.put_along_axis(ranks, idx, (first + last) / 2.0 + 1.0, axis=1)
+    return ranks.T
+
+
 def z_scale(a: np.ndarray) -> np.ndarray:
     """Normal scores of the ranks pooled over chains and draws, per quantity."""
     c, n, m = a.shape
-    ranks = rankdata(a.reshape(c * n, m), method="average", axis=0)
+    ranks = average_ranks(a.reshape(c * n, m))
     return ndtri((ranks - 0.375) / (c * n + 0.25)).reshape(c, n, m)
 
 
@@ -61,6 +78,22 @@ def _rhat_basic(a: np.ndarray) -> np.ndarray:
     within = a.var(axis=1, ddof=1).mean(axis=0)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.sqrt((between / within + n - 1) / n)
+
+
+def rhat_ess(draws):
+    """(R-hat, bulk ESS) together, ranking the split chains once for both."""
+    a, squeeze = _as3d(draws)
+    _check_length(a)
+    s = split_chains(a)
+    z = z_scale(s)
+    bulk = _rhat_basic(z)
+    tail = _rhat_basic(z_scale(np.abs(s - np.median(s.reshape(-1, s.shape[2]), axis=0))))
+    r = np.maximum(bulk, tail)
+    e = _ess_basic(z)
+    const = _constant(a)
+    r[const] = 1.0
+    e[const] = a.shape[0] * a.shape[1]
+    return _out(r, squeeze), _out(e, squeeze)
 
 
 def rhat(draws):
