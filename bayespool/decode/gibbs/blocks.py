@@ -18,20 +18,21 @@ from .single_site import site_sweep
 
 @njit(parallel=True, cache=True)
 def run_block(n_sweeps, sweep0, record,
-              pool_ptr, pool_members, sample_ptr, sample_pools, lik_ptr, delta, near, base_logit,
+              pool_ptr, pool_members, sample_ptr, sample_pools, lik_ptr, delta, base_logit,
               swap_pools, swap_rounds, use_prevalence, prior_a, prior_b,
-              x, d, total, shift, prevalence, rng, tally,
+              x, d, cur, total, shift, prevalence, rng, tally,
               rb, hist, watch, batch, bm_buf, bm_count, bm_stride, dr_x, dr_prev, dr_count,
               dr_stride):
     n_chains, n_order = x.shape
     for c in prange(n_chains):
         for s in range(n_sweeps):
-            total[c] += site_sweep(sample_ptr, sample_pools, lik_ptr, delta, near,
-                                   base_logit, shift[c], x[c], d[c], rng[c], record, rb[c], watch,
+            total[c] += site_sweep(sample_ptr, sample_pools, lik_ptr, delta, base_logit,
+                                   shift[c], x[c], d[c], cur[c], rng[c], record, rb[c], watch,
                                    batch[c])
             if swap_rounds > 0:
                 swap_sweep(swap_pools, swap_rounds, pool_ptr, pool_members, sample_ptr,
-                           sample_pools, lik_ptr, delta, base_logit, x[c], d[c], rng[c], tally[c])
+                           sample_pools, lik_ptr, delta, base_logit, x[c], d[c], cur[c], rng[c],
+                           tally[c])
             if use_prevalence:
                 prevalence[c], shift[c] = draw_prevalence(rng[c], prior_a, prior_b, total[c],
                                                           n_order)

@@ -4,7 +4,7 @@ Sampled specimens are renumbered 0..m-1 in sweep order (``order[u]`` is the run'
 u), ordered by their first read pool so that consecutive updates touch neighbouring memory. Only read
 pools take part (an unread pool carries no information). For every read pool t the table
 ``delta[lik_ptr[t] + j] = log L_t[j + 1] - log L_t[j]`` turns a single-site update into a sum over the
-specimen's pools; ``near`` repeats its first entries compactly. A likelihood of zero (Se or Sp of 1)
+specimen's pools (the chains cache the terms of their current counts, see state.py). A likelihood of zero (Se or Sp of 1)
 becomes ``-PENALTY``: a state that breaks a hard constraint then weighs exp(-PENALTY) = 0 in double
 precision against any allowed state, so the posterior over allowed states is exact, while a chain
 started in a forbidden state still has finite log-odds that lead it out. A chain still in a
@@ -19,7 +19,6 @@ import numpy as np
 from ...run import csr
 
 PENALTY = 1.0e6  # log-weight of one broken hard constraint
-NEAR = 4  # delta for counts 0..NEAR-1 is also kept in a compact float32 (pools, NEAR) table
 
 
 @dataclass(frozen=True)
@@ -34,7 +33,6 @@ class GibbsModel:
     lik_ptr: np.ndarray       # int64: pool t's tables start at lik_ptr[t]
     loglik: np.ndarray        # float64: log L_t[d], with -PENALTY for log 0
     delta: np.ndarray         # float64: log L_t[d + 1] - log L_t[d]
-    near: np.ndarray          # float32 (n_pools, NEAR): delta for d < NEAR, cache-friendly
     base_logit: np.ndarray    # float64 (m,): logit of the prior, 0 when prevalence is shared
     swap_pools: np.ndarray    # int32: read pools with a positive readout and two or more members
     read: np.ndarray          # bool (n_pools,)
@@ -60,10 +58,6 @@ class GibbsModel:
         delta = np.zeros_like(ll)
         delta[:-1] = ll[1:] - ll[:-1]
         delta[lik_ptr[1:] - 1] = 0.0  # the last entry of each pool has no successor
-        near = np.zeros((T, NEAR), dtype=np.float32)
-        for j in range(NEAR):
-            ok = j < run.pool_size
-            near[ok, j] = delta[lik_ptr[:-1][ok] + j]
         prior = run.prior[order]
         base = np.zeros(len(order)) if shared_prevalence else np.log(prior) - np.log1p(-prior)
         swap = np.flatnonzero(read & (run.n_positive > 0) & (run.pool_size >= 2))
@@ -72,7 +66,7 @@ class GibbsModel:
         hit = (run.n_positive > 0)[owner] & (members >= 0)
         pos_member[members[hit]] = True
         return cls(order, run.pool_ptr.astype(np.int64), members.astype(np.int32), s_ptr, s_pools,
-                   lik_ptr.astype(np.int64), ll, delta, near, base, swap.astype(np.int32), read,
+                   lik_ptr.astype(np.int64), ll, delta, base, swap.astype(np.int32), read,
                    pos_member)
 
     @property

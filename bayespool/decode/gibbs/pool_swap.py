@@ -13,10 +13,11 @@ import numpy as np
 from numba import njit
 
 from .rng import below, uniform
+from .state import set_count
 
 
 @njit(cache=True)
-def _shift_counts(i, step, sample_ptr, sample_pools, lik_ptr, delta, d):
+def _shift_counts(i, step, sample_ptr, sample_pools, lik_ptr, delta, d, cur):
     """Move i's pools' counts by ``step`` (+1 or -1); returns the change in log-likelihood."""
     dl = 0.0
     for b in range(sample_ptr[i], sample_ptr[i + 1]):
@@ -25,13 +26,13 @@ def _shift_counts(i, step, sample_ptr, sample_pools, lik_ptr, delta, d):
             dl += delta[lik_ptr[t] + d[t]]
         else:
             dl -= delta[lik_ptr[t] + d[t] - 1]
-        d[t] += step
+        set_count(t, d[t] + step, lik_ptr, delta, d, cur)
     return dl
 
 
 @njit(cache=True)
 def swap_sweep(pools, rounds, pool_ptr, pool_members, sample_ptr, sample_pools, lik_ptr, delta,
-               base_logit, x, d, rng, tally):
+               base_logit, x, d, cur, rng, tally):
     """``rounds`` swap proposals in each pool of ``pools``; tally[0] += proposed, tally[1] += accepted."""
     for a in range(len(pools)):
         t = pools[a]
@@ -57,16 +58,16 @@ def swap_sweep(pools, rounds, pool_ptr, pool_members, sample_ptr, sample_pools, 
                         j = s
                     seen_neg += 1
             log_ratio = base_logit[j] - base_logit[i]
-            log_ratio += _shift_counts(i, -1, sample_ptr, sample_pools, lik_ptr, delta, d)
-            log_ratio += _shift_counts(j, 1, sample_ptr, sample_pools, lik_ptr, delta, d)
+            log_ratio += _shift_counts(i, -1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
+            log_ratio += _shift_counts(j, 1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
             tally[0] += 1
             if log_ratio >= 0.0 or uniform(rng) < np.exp(log_ratio):
                 x[i] = 0
                 x[j] = 1
                 tally[1] += 1
             else:
-                _shift_counts(j, -1, sample_ptr, sample_pools, lik_ptr, delta, d)
-                _shift_counts(i, 1, sample_ptr, sample_pools, lik_ptr, delta, d)
+                _shift_counts(j, -1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
+                _shift_counts(i, 1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
 
 
 class PoolSwapMove:

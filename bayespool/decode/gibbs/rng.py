@@ -26,15 +26,20 @@ def seed_states(rng: np.random.Generator, n_chains: int) -> np.ndarray:
 
 
 @njit(cache=True, inline="always")
-def uniform(state):
-    """A double in [0, 1) from the 53 high bits of xoroshiro128+; advances ``state`` in place."""
-    s0 = state[0]
-    s1 = state[1]
+def next_uniform(s0, s1):
+    """One xoroshiro128+ step on state words held in registers: (double in [0, 1), s0, s1)."""
     result = s0 + s1
     s1 ^= s0
-    state[0] = ((s0 << _R24) | (s0 >> _R40)) ^ s1 ^ (s1 << _S16)
-    state[1] = (s1 << _R37) | (s1 >> _R27)
-    return np.float64(result >> _S11) * _TO_UNIT
+    n0 = ((s0 << _R24) | (s0 >> _R40)) ^ s1 ^ (s1 << _S16)
+    n1 = (s1 << _R37) | (s1 >> _R27)
+    return np.float64(result >> _S11) * _TO_UNIT, n0, n1
+
+
+@njit(cache=True, inline="always")
+def uniform(state):
+    """A double in [0, 1) from the 53 high bits of xoroshiro128+; advances ``state`` in place."""
+    u, state[0], state[1] = next_uniform(state[0], state[1])
+    return u
 
 
 @njit(cache=True)

@@ -90,9 +90,9 @@ class GibbsSampler:
     def _advance(self, state: ChainState, trace: Trace, n: int, record: bool, tally):
         m, pm = self.model, self.prevalence_move
         run_block(n, trace.sweeps, record, m.pool_ptr, m.pool_members, m.sample_ptr,
-                  m.sample_pools, m.lik_ptr, m.delta, m.near, m.base_logit, m.swap_pools, self.swap_rounds,
+                  m.sample_pools, m.lik_ptr, m.delta, m.base_logit, m.swap_pools, self.swap_rounds,
                   pm is not None, pm.a if pm else 1.0, pm.b if pm else 1.0,
-                  state.x, state.d, state.total, state.logit_shift, state.prevalence, state.rng,
+                  state.x, state.d, state.cur, state.total, state.logit_shift, state.prevalence, state.rng,
                   tally, trace.rb, trace.hist, trace.watch, trace.batch, trace.bm_buf,
                   trace.bm_count, trace.bm_stride, trace.dr_x, trace.dr_prev, trace.dr_count,
                   trace.dr_stride)
@@ -219,6 +219,7 @@ class GibbsSampler:
             src = good[c % len(good)]
             state.x[c] = state.x[src]
             state.d[c] = state.d[src]
+            state.cur[c] = state.cur[src]
             state.total[c] = state.total[src]
             state.logit_shift[c] = state.logit_shift[src]
             state.prevalence[c] = state.prevalence[src]

@@ -12,35 +12,35 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from .rng import uniform
+from .rng import next_uniform
+from .state import set_count
 
 
 @njit(cache=True)
-def site_sweep(sample_ptr, sample_pools, lik_ptr, delta, near, base_logit, shift, x, d,
-               rng, record, rb, watch, batch):
+def site_sweep(sample_ptr, sample_pools, lik_ptr, delta, base_logit, shift, x, d, cur, rng,
+               record, rb, watch, batch):
     """One sweep over every specimen (numbered in sweep order); returns the change in positives.
 
-    ``near[t, j]`` equals ``delta[lik_ptr[t] + j]`` for small j (see model.py). When ``record`` is true, adds each conditional probability to ``rb[i]`` and, for watched
+    ``cur[t, x_i]`` holds pool t's term for a member with status x_i (see state.set_count), so an
+    update reads one cached value per pool and touches the tables only when a status changes.
+    When ``record`` is true, adds each conditional probability to ``rb[i]`` and, for watched
     specimens (``watch[i] >= 0``), to ``batch[watch[i]]``.
     """
     change = 0
-    n_near = near.shape[1]
+    s0, s1 = rng[0], rng[1]  # the random state stays in registers during the sweep
     for i in range(len(x)):
         xi = x[i]
         lo = base_logit[i] + shift
         for b in range(sample_ptr[i], sample_ptr[i + 1]):
-            t = sample_pools[b]
-            dm = d[t] - xi
-            if dm < n_near:
-                lo += near[t, dm]
-            else:
-                lo += delta[lik_ptr[t] + dm]
+            lo += cur[sample_pools[b], xi]
         p = 1.0 / (1.0 + np.exp(-lo))
-        new = 1 if uniform(rng) < p else 0
+        u, s0, s1 = next_uniform(s0, s1)
+        new = 1 if u < p else 0
         if new != xi:
             step = new - xi
             for b in range(sample_ptr[i], sample_ptr[i + 1]):
-                d[sample_pools[b]] += step
+                t = sample_pools[b]
+                set_count(t, d[t] + step, lik_ptr, delta, d, cur)
             x[i] = new
             change += step
         if record:
@@ -48,6 +48,7 @@ def site_sweep(sample_ptr, sample_pools, lik_ptr, delta, near, base_logit, shift
             w = watch[i]
             if w >= 0:
                 batch[w] += p
+    rng[0], rng[1] = s0, s1
     return change
 
 

@@ -10,8 +10,31 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from numba import njit
+
 from .model import GibbsModel
 from .rng import seed_states
+
+
+@njit(cache=True, inline="always")
+def set_count(t, value, lik_ptr, delta, d, cur):
+    """Set pool t's positive count and its cached log-odds terms.
+
+    ``cur[t, 0]`` is what pool t adds to the log-odds of a negative member (count of the others
+    = d_t), ``cur[t, 1]`` that of a positive member (d_t - 1): one load per pool in an update.
+    """
+    d[t] = value
+    cur[t, 0] = delta[lik_ptr[t] + value]
+    cur[t, 1] = delta[lik_ptr[t] + value - 1] if value > 0 else 0.0
+
+
+def cached_terms(model: GibbsModel, d: np.ndarray) -> np.ndarray:
+    """``cur`` of :func:`set_count` for counts d (chains, pools), float32."""
+    start = model.lik_ptr[:-1]
+    cur = np.zeros(d.shape + (2,), dtype=np.float32)
+    cur[..., 0] = model.delta[start + d]
+    cur[..., 1] = np.where(d > 0, model.delta[start + np.maximum(d - 1, 0)], 0.0)
+    return cur
 
 
 @dataclass
@@ -20,6 +43,7 @@ class ChainState:
 
     x: np.ndarray           # uint8 (chains, sampled specimens in sweep order)
     d: np.ndarray           # int32 (chains, n_pools): positive members of each pool
+    cur: np.ndarray         # float32 (chains, n_pools, 2): cached log-odds terms (set_count)
     total: np.ndarray       # int64 (chains,): positives among the sampled specimens
     logit_shift: np.ndarray  # float64 (chains,): logit of the shared prevalence, else 0
     prevalence: np.ndarray  # float64 (chains,): the shared prevalence, NaN when priors are fixed
@@ -52,4 +76,5 @@ class ChainState:
             a, b = prevalence_prior
             prev = rng.beta(a, b, size=n_chains).clip(1e-12, 1 - 1e-12)
             shift = np.log(prev) - np.log1p(-prev)
-        return cls(x, d.astype(np.int32), total, shift, prev, seed_states(rng, n_chains))
+        d = d.astype(np.int32)
+        return cls(x, d, cached_terms(model, d), total, shift, prev, seed_states(rng, n_chains))
