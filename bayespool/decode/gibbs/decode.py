@@ -79,8 +79,9 @@ def decode_gibbs(run, lik_ptr, loglik, negative_below, positive_above, seed=None
     cols["rhat"] = result.rhat
     cols["ess"] = result.ess
     prior = run.prior
-    if result.prevalence is not None:
-        prior = np.full(run.n_samples, result.prevalence["mean"])
+    if result.prevalence is not None:  # the shared prevalence's prior mean replaces the priors
+        a, b = result.prevalence["prior"]
+        prior = np.full(run.n_samples, a / (a + b))
     return Posterior(run.sample_ids, result.probability, prior, "gibbs",
                      np.full(run.n_samples, "gibbs", dtype=object), negative_below,
                      positive_above, mcse=result.mcse, count_distribution=result.count_distribution,
@@ -130,6 +131,7 @@ def fallback(run, lik_ptr, loglik, comps, selected, why: str, seed=None, negativ
     result = sample_components(run, lik_ptr, loglik, comps, selected, seed, negative_below,
                                positive_above, options)
     full = summary_of(result, run, negative_below, positive_above)
+    full.pop("positives_posterior")  # covers the sampled part only; the caller convolves
     note = (f"{why}: {len(result.specimens)} sample(s) in {len(selected)} group(s) decoded by the "
             f"Gibbs sampler ({result.reason})")
     return Fallback(result.specimens, result.probability, result.mcse, result.rhat, result.ess,

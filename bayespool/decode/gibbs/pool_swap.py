@@ -17,17 +17,38 @@ from .state import set_count
 
 
 @njit(cache=True)
-def _shift_counts(i, step, sample_ptr, sample_pools, lik_ptr, delta, d, cur):
-    """Move i's pools' counts by ``step`` (+1 or -1); returns the change in log-likelihood."""
+def _shares(s, j, sample_ptr, sample_pools):
+    """Is pool s one of specimen j's pools?"""
+    for b in range(sample_ptr[j], sample_ptr[j + 1]):
+        if sample_pools[b] == s:
+            return True
+    return False
+
+
+@njit(cache=True)
+def _log_ratio(i, j, sample_ptr, sample_pools, cur):
+    """Log-likelihood change of x_i: 1 -> 0 with x_j: 0 -> 1, from the cached per-pool terms.
+
+    A pool holding both keeps its count and contributes nothing (pool t itself among them).
+    """
     dl = 0.0
     for b in range(sample_ptr[i], sample_ptr[i + 1]):
-        t = sample_pools[b]
-        if step > 0:
-            dl += delta[lik_ptr[t] + d[t]]
-        else:
-            dl -= delta[lik_ptr[t] + d[t] - 1]
-        set_count(t, d[t] + step, lik_ptr, delta, d, cur)
+        s = sample_pools[b]
+        if not _shares(s, j, sample_ptr, sample_pools):
+            dl -= cur[s, 1]
+    for b in range(sample_ptr[j], sample_ptr[j + 1]):
+        s = sample_pools[b]
+        if not _shares(s, i, sample_ptr, sample_pools):
+            dl += cur[s, 0]
     return dl
+
+
+@njit(cache=True)
+def _shift_counts(i, step, sample_ptr, sample_pools, lik_ptr, delta, d, cur):
+    """Move the counts of i's pools by ``step`` (+1 or -1)."""
+    for b in range(sample_ptr[i], sample_ptr[i + 1]):
+        t = sample_pools[b]
+        set_count(t, d[t] + step, lik_ptr, delta, d, cur)
 
 
 @njit(cache=True)
@@ -57,17 +78,15 @@ def swap_sweep(pools, rounds, pool_ptr, pool_members, sample_ptr, sample_pools, 
                     if seen_neg == want_neg:
                         j = s
                     seen_neg += 1
-            log_ratio = base_logit[j] - base_logit[i]
-            log_ratio += _shift_counts(i, -1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
-            log_ratio += _shift_counts(j, 1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
+            log_ratio = base_logit[j] - base_logit[i] + _log_ratio(i, j, sample_ptr,
+                                                                   sample_pools, cur)
             tally[0] += 1
             if log_ratio >= 0.0 or uniform(rng) < np.exp(log_ratio):
                 x[i] = 0
                 x[j] = 1
+                _shift_counts(i, -1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
+                _shift_counts(j, 1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
                 tally[1] += 1
-            else:
-                _shift_counts(j, -1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
-                _shift_counts(i, 1, sample_ptr, sample_pools, lik_ptr, delta, d, cur)
 
 
 class PoolSwapMove:
