@@ -52,7 +52,8 @@ def summary_of(result: GibbsResult, run, negative_below, positive_above) -> dict
     """The sampler's part of a Posterior's diagnostics (and so of ``--json``)."""
     groups = ambiguity_groups(run, _full(result, run), result.draws, result.specimens,
                               negative_below, positive_above)
-    out = {"gibbs": dict(result.diagnostics), "ambiguity_groups": groups,
+    out = {"converged": result.converged, "gibbs": dict(result.diagnostics),
+           "ambiguity_groups": groups,
            "positives_posterior": count_summary(result.count_distribution)}
     if result.prevalence is not None:
         out["prevalence_posterior"] = result.prevalence
