@@ -317,8 +317,10 @@ class GibbsSampler:
                 prevalence["ess"] = float(ess(pdraws))
                 prevalence["rhat"] = float(rhat(pdraws))
         perm = np.argsort(m.order, kind="stable")  # report in the run's specimen order
+        if not np.array_equal(perm, np.arange(n_order)):
+            draws = np.take(draws, perm, axis=1)
         return GibbsResult(m.order[perm], prob[perm], err[perm], r_all[perm], e_all[perm], dist,
-                           np.ascontiguousarray(draws[:, perm]), draw_chain, converged, reason,
+                           np.ascontiguousarray(draws), draw_chain, converged, reason,
                            prevalence, diag)
 
 
