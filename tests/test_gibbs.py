@@ -246,3 +246,13 @@ def test_large_run_path_watches_only_specimens_near_a_threshold():
     assert np.isfinite(res.rhat[undecided]).all()  # every undecided one is followed
     err = np.abs(res.probability - exact.probability)
     assert err.max() <= 0.04 and err.mean() <= 0.01
+
+
+def test_unknown_prevalence_takes_auto_to_the_sampler_and_is_refused_by_exact():
+    from bayespool.errors import InputError
+    run = loopy_run(5, n=10)
+    post = decode(run, ASSAYS[0], "auto", seed=1, gibbs_options={"prevalence_prior": (1, 9)})
+    assert post.method == "gibbs" and "prevalence_posterior" in post.diagnostics
+    assert any("unknown prevalence" in w for w in post.warnings)
+    with pytest.raises(InputError):
+        decode(run, ASSAYS[0], "exact", gibbs_options={"prevalence_prior": (1, 9)})
