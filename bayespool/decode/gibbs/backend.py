@@ -5,7 +5,8 @@ Two buffers per chain, each of fixed capacity: Rao-Blackwell batch means of the 
 the statuses (uint8, every ``dr_stride`` sweeps) with the shared prevalence. When a buffer is full it
 is halved (adjacent batch means averaged, every other draw dropped) and its stride doubled, so memory
 stays bounded however long the run and the rows always cover the whole recording window evenly:
-row r of a buffer with stride s holds sweeps up to (r + 1) s.
+row r of a buffer with stride s holds sweeps up to (r + 1) s. A specimen followed later (``extend``)
+has batch means from its ``first_row`` on.
 """
 from __future__ import annotations
 
@@ -19,6 +20,7 @@ class Trace:
                  draw_capacity: int):
         self.n_chains = n_chains
         self.watched = np.asarray(watched, dtype=np.int64)  # sampled specimens followed
+        self.first_row = np.zeros(len(self.watched), dtype=np.int64)  # first valid row of each
         self.watch = np.full(n_sampled, -1, dtype=np.int32)
         self.watch[self.watched] = np.arange(len(self.watched), dtype=np.int32)
         self.batch_capacity = max(8, batch_capacity + batch_capacity % 2)
@@ -42,6 +44,20 @@ class Trace:
         return min(self.batch_capacity * self.bm_stride, self.draw_capacity * self.dr_stride) \
             - self.sweeps
 
+    def extend(self, more: np.ndarray):
+        """Follow more specimens from now on: their rows start after the batch in progress."""
+        more = np.asarray(more, dtype=np.int64)
+        m0, m1 = len(self.watched), len(self.watched) + len(more)
+        buf = np.zeros((self.n_chains, self.batch_capacity, m1), dtype=np.float32)
+        buf[:, :, :m0] = self.bm_buf
+        batch = np.zeros((self.n_chains, m1))
+        batch[:, :m0] = self.batch
+        self.bm_buf, self.batch = buf, batch
+        self.first_row = np.concatenate([self.first_row,
+                                         np.full(len(more), int(self.bm_count[0]) + 1)])
+        self.watch[more] = np.arange(m0, m1, dtype=np.int32)
+        self.watched = np.concatenate([self.watched, more])
+
     def compact(self):
         """Halve whichever buffer is full."""
         if self.bm_count[0] == self.batch_capacity:
@@ -49,6 +65,7 @@ class Trace:
             self.bm_buf[:, :half] = 0.5 * (self.bm_buf[:, 0::2] + self.bm_buf[:, 1::2])
             self.bm_count[:] = half
             self.bm_stride *= 2
+            self.first_row = (self.first_row + 1) // 2  # a merged row is valid when both were
         if self.dr_count[0] == self.draw_capacity:
             half = self.draw_capacity // 2
             self.dr_x[:, :half] = self.dr_x[:, 1::2]

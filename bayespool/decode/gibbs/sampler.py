@@ -8,7 +8,7 @@ ESS >= 400 (Vehtari et al. 2021); it stops there or at the sweep cap, and says w
 
 Memory is bounded: diagnostics follow the specimens that can still be undecided (all of them when
 they fit the budget; otherwise those whose pilot estimates are near a threshold, widened and the
-recording restarted if another one drifts there), and draws are thinned to a few thousand.
+followed from then on if another one drifts there), and draws are thinned to a few thousand.
 """
 from __future__ import annotations
 
@@ -36,9 +36,8 @@ RHAT_TARGET = 1.01
 ESS_TARGET = 400.0
 MAX_DRAWS = 4000
 MEMORY_BUDGET = 256 * 2**20  # bytes for the trace buffers
-BATCH_CAPACITY = 256  # batch-mean rows per chain (halved when full)
+BATCH_CAPACITY = 256  # batch-mean rows per chain at least (halved when full)
 _BAND = 5.0  # large runs watch specimens within a factor 5 of a threshold's tail
-_RESTARTS = 3
 
 
 @dataclass
@@ -99,13 +98,17 @@ class GibbsSampler:
         if record:
             trace.sweeps += n
 
-    def _trace(self, watched, draw_rows):
+    def _trace(self, watched, draw_rows, room_for: int = 0):
+        """A fresh Trace; its batch rows leave memory for ``room_for`` columns in all."""
         m = self.model
-        return Trace(self.chains, m.n_sampled, watched, self._batch_rows(len(watched)), draw_rows)
+        rows = self._batch_rows(max(len(watched), room_for))
+        return Trace(self.chains, m.n_sampled, watched, rows, draw_rows)
 
     def _batch_rows(self, n_watched: int) -> int:
+        """Rows per chain: enough that half of them over all chains can show the ESS target."""
+        want = max(BATCH_CAPACITY, int(np.ceil(4 * self.ess_target / self.chains)))
         per_row = max(1, n_watched) * self.chains * 4
-        return int(max(16, min(BATCH_CAPACITY, (self.budget // 2) // per_row)))
+        return int(max(16, min(want, (self.budget // 2) // per_row)))
 
     def sample(self, seed=None, warmup: int = WARMUP, min_sweeps: int = MIN_SWEEPS,
                max_sweeps: int = MAX_SWEEPS, rhat_target: float = RHAT_TARGET,
@@ -121,6 +124,8 @@ class GibbsSampler:
             raise ValueError("max_sweeps must be at least 8")
         min_sweeps = max(8, min(int(min_sweeps), int(max_sweeps)))
         self.budget = int(memory_budget)
+        self.ess_target = float(ess_target)
+        self.unfollowed = 0
         rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
         m, run, C = self.model, self.run_, self.chains
         n_order = len(m.order)
@@ -147,8 +152,11 @@ class GibbsSampler:
             self._advance(state, scratch, pilot, True, tally)
             watched = self._near_threshold(scratch, np.zeros(0, np.int64), negative_below,
                                            positive_above)
-        trace = self._trace(watched, draw_rows)
-        restarts = 0
+        trace = self._trace(watched, draw_rows, room_for=0 if fits else 2 * len(watched) + 100)
+        if trace.batch_capacity * C < 4 * self.ess_target:
+            notes.append(f"the memory budget allows {trace.batch_capacity} batch rows per chain "
+                         f"for {len(watched)} followed specimens, too few to show an ESS of "
+                         f"{self.ess_target:g}; raise memory_budget")
         next_check = min_sweeps
         tally[:] = 0
         while True:
@@ -161,15 +169,8 @@ class GibbsSampler:
             bar.update(n)
             if trace.sweeps < next_check and trace.sweeps < max_sweeps:
                 continue
-            if not fits and restarts < _RESTARTS:
-                more = self._near_threshold(trace, trace.watched, negative_below, positive_above)
-                if len(more):
-                    restarts += 1
-                    notes.append(f"{len(more)} more specimen(s) came near a threshold; "
-                                 "recording restarted to follow them")
-                    trace = self._trace(np.union1d(trace.watched, more), draw_rows)
-                    next_check = min_sweeps
-                    continue
+            if not fits:
+                self._follow_more(trace, negative_below, positive_above, notes)
             check = self._check(trace, negative_below, positive_above, rhat_target, ess_target)
             if check["converged"] or trace.sweeps >= max_sweeps:
                 break
@@ -187,7 +188,7 @@ class GibbsSampler:
         warm-up and returns the best rate; numba's thread count decides how many cores it uses.
         """
         rng = np.random.default_rng(seed)
-        self.budget = MEMORY_BUDGET
+        self.budget, self.ess_target = MEMORY_BUDGET, ESS_TARGET
         pm = self.prevalence_move
         state = ChainState.spread(self.model, self.run_, self.chains, rng,
                                   None if pm is None else (pm.a, pm.b))
@@ -226,6 +227,20 @@ class GibbsSampler:
         notes.append(f"{len(bad)} chain(s) found no state allowed by the hard constraints during "
                      "warm-up and restarted from another chain's state")
 
+    def _follow_more(self, trace: Trace, lo, hi, notes: list):
+        """Large runs: also follow specimens that came near a threshold, as far as memory allows."""
+        more = self._near_threshold(trace, trace.watched, lo, hi)
+        if not len(more):
+            return
+        room = (self.budget // 2) // (self.chains * trace.batch_capacity * 4) - len(trace.watched)
+        if room < len(more):
+            self.unfollowed = max(self.unfollowed, len(more) - max(0, room))
+            more = more[:max(0, room)]
+        if len(more):
+            trace.extend(more)
+            notes.append(f"{len(more)} more specimen(s) came near a threshold after "
+                         f"{trace.sweeps} sweeps and are followed from then on")
+
     def _near_threshold(self, trace: Trace, already, lo, hi) -> np.ndarray:
         """Sampled specimens (in sweep numbering) of specimens some chain puts near or past a threshold."""
         per_chain = trace.rb / max(1, trace.sweeps)
@@ -244,17 +259,10 @@ class GibbsSampler:
         straddle = ((cw < lo).any(axis=0) & (cw >= lo).any(axis=0)) | \
                    ((cw > hi).any(axis=0) & (cw <= hi).any(axis=0))
         crit = np.flatnonzero(undecided | straddle)
-        bm = trace.batch_means()
-        out = {"criterion": w[crit], "rhat": np.full(len(crit), np.nan),
-               "ess": np.full(len(crit), np.nan)}
-        if len(crit) == 0:
-            out["converged"] = True
-            return out
-        sub = bm[:, :, crit].astype(float)
-        r, e = rhat_ess(sub)
-        out["rhat"], out["ess"] = np.asarray(r, dtype=float), np.asarray(e, dtype=float)
-        out["converged"] = bool((out["rhat"] <= rhat_target).all() and
-                                (out["ess"] >= ess_target).all())
+        out = {"criterion": w[crit]}
+        out["rhat"], out["ess"], _ = _diagnose(trace, crit, with_mcse=False)
+        out["converged"] = bool(self.unfollowed == 0 and (out["rhat"] <= rhat_target).all()
+                                and (out["ess"] >= ess_target).all())
         return out
 
     def _result(self, trace, check, tally, seconds, warmup, max_sweeps, notes, rhat_target,
@@ -268,10 +276,9 @@ class GibbsSampler:
         if C > 1:
             err = per_chain.std(axis=0, ddof=1) / np.sqrt(C)
         w = trace.watched
-        bm = trace.batch_means().astype(float)
-        if len(w) and bm.shape[1] >= 4:
-            err[w] = mcse(bm)
-            r_all[w], e_all[w] = rhat_ess(bm)
+        if len(w):
+            r_all[w], e_all[w], werr = _diagnose(trace, np.arange(len(w)), with_mcse=True)
+            err[w] = np.where(np.isfinite(werr), werr, err[w])
         hist = trace.hist.sum(axis=0)
         dist = hist / hist.sum()
         draws = trace.draws()
@@ -279,8 +286,7 @@ class GibbsSampler:
         draws = draws.reshape(-1, n_order)
         crit = check["criterion"]
         converged = bool(check["converged"])
-        worst_r = float(np.nanmax(check["rhat"])) if len(crit) else None
-        worst_e = float(np.nanmin(check["ess"])) if len(crit) else None
+        worst_r, worst_e = _nanmax(check["rhat"]), _nanmin(check["ess"])
         if converged:
             reason = (f"converged: every undecided specimen has R-hat <= {rhat_target:g} and "
                       f"ESS >= {ess_target:g} after {trace.sweeps} sweeps of {C} chains"
@@ -288,10 +294,13 @@ class GibbsSampler:
                       f"converged: every specimen is decided by all {C} chains after "
                       f"{trace.sweeps} sweeps")
         else:
-            bad = int(((check["rhat"] > rhat_target) | ~(check["ess"] >= ess_target)).sum())
+            bad = int((~(check["rhat"] <= rhat_target) | ~(check["ess"] >= ess_target)).sum())
             reason = (f"stopped at the cap of {max_sweeps} sweeps: {bad} undecided specimen(s) "
                       f"still have R-hat > {rhat_target:g} or ESS < {ess_target:g} "
-                      f"(worst R-hat {worst_r:.3f}, lowest ESS {worst_e:.0f})")
+                      f"(worst R-hat {_fmt(worst_r, '.3f')}, lowest ESS {_fmt(worst_e, '.0f')})")
+            if self.unfollowed:
+                reason += (f"; {self.unfollowed} specimen(s) near a threshold could not be "
+                           "followed within the memory budget")
         updates = (warmup + trace.sweeps) * n_order * C
         diag = {"converged": converged, "stop": reason, "chains": C, "warmup": warmup,
                 "sweeps": int(trace.sweeps), "max_sweeps": max_sweeps,
@@ -322,6 +331,32 @@ class GibbsSampler:
         return GibbsResult(m.order[perm], prob[perm], err[perm], r_all[perm], e_all[perm], dist,
                            np.ascontiguousarray(draws), draw_chain, converged, reason,
                            prevalence, diag)
+
+
+def _diagnose(trace: Trace, cols: np.ndarray, with_mcse: bool):
+    """R-hat, bulk ESS (and MCSE) of watched columns ``cols`` from their valid batch-mean rows.
+
+    Columns followed from a later row are grouped by that row; fewer than 8 valid rows give NaN
+    (not converged).
+    """
+    bm = trace.batch_means()
+    r = np.full(len(cols), np.nan)
+    e = np.full(len(cols), np.nan)
+    err = np.full(len(cols), np.nan)
+    first = trace.first_row[cols]
+    for f in np.unique(first):
+        pick = np.flatnonzero(first == f)
+        if bm.shape[1] - f < 8:
+            continue
+        sub = bm[:, f:, cols[pick]].astype(float)
+        r[pick], e[pick] = rhat_ess(sub)
+        if with_mcse:
+            err[pick] = mcse(sub)
+    return r, e, err
+
+
+def _fmt(value, spec):
+    return "n/a" if value is None else format(value, spec)
 
 
 def _nanmax(a):
