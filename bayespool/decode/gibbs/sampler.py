@@ -37,6 +37,7 @@ ESS_TARGET = 400.0
 MAX_DRAWS = 4000
 MEMORY_BUDGET = 256 * 2**20  # bytes for the trace buffers
 BATCH_CAPACITY = 256  # batch-mean rows per chain at least (halved when full)
+_CHUNK = 2048  # specimens per diagnostics call
 _BAND = 5.0  # large runs watch specimens within a factor 5 of a threshold's tail
 
 
@@ -345,13 +346,15 @@ def _diagnose(trace: Trace, cols: np.ndarray, with_mcse: bool):
     err = np.full(len(cols), np.nan)
     first = trace.first_row[cols]
     for f in np.unique(first):
-        pick = np.flatnonzero(first == f)
+        group = np.flatnonzero(first == f)
         if bm.shape[1] - f < 8:
             continue
-        sub = bm[:, f:, cols[pick]].astype(float)
-        r[pick], e[pick] = rhat_ess(sub)
-        if with_mcse:
-            err[pick] = mcse(sub)
+        for start in range(0, len(group), _CHUNK):  # bounded temporary memory
+            pick = group[start:start + _CHUNK]
+            sub = bm[:, f:, cols[pick]].astype(float)
+            r[pick], e[pick] = rhat_ess(sub)
+            if with_mcse:
+                err[pick] = mcse(sub)
     return r, e, err
 
 
