@@ -51,7 +51,7 @@ def test_bad_gibbs_options_exit_2_without_output(cli, tmp_path):
     layout, reads, assay = files(tmp_path)
     out = tmp_path / "post.csv"
     for extra in (["--prevalence-prior", "1"], ["--prevalence-prior", "-1,2"], ["--chains", "0"],
-                  ["--max-sweeps", "3"]):
+                  ["--gibbs-sweeps", "3"]):
         r = cli("decode", "--layout", layout, "--readouts", reads, "--assay", assay, "--method",
                 "gibbs", "--out", out, *extra)
         assert r.code == 2, (extra, r.err)
