@@ -18,7 +18,6 @@ from bayespool.decode.gibbs import GibbsSampler, SingleSiteMove, run_sampler
 from bayespool.errors import ImpossibleEvidenceError
 from bayespool.run import Run
 
-from .conftest import random_design
 
 
 def loopy_run(seed, n=16, prevalence=0.08):

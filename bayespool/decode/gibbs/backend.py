@@ -14,7 +14,7 @@ import numpy as np
 
 
 class Trace:
-    """Recording buffers of one sampling window (reset when the window restarts)."""
+    """Recording buffers of one sampling run after warm-up."""
 
     def __init__(self, n_chains: int, n_sampled: int, watched: np.ndarray, batch_capacity: int,
                  draw_capacity: int):
@@ -84,6 +84,3 @@ class Trace:
 
     def prevalence_draws(self) -> np.ndarray:
         return self.dr_prev[:, :int(self.dr_count[0])]
-
-    def nbytes(self) -> int:
-        return int(self.bm_buf.nbytes + self.dr_x.nbytes + self.rb.nbytes + self.hist.nbytes)

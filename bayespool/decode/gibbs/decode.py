@@ -14,8 +14,7 @@ import numpy as np
 from ...errors import InputError
 from ..posterior import Posterior
 from .joint import ambiguity_groups, count_summary
-from .sampler import (CHAINS, ESS_TARGET, MAX_SWEEPS, MIN_SWEEPS, RHAT_TARGET, WARMUP,
-                      GibbsResult, GibbsSampler)
+from .sampler import CHAINS, GibbsResult, GibbsSampler
 
 OPTIONS = ("chains", "warmup", "min_sweeps", "max_sweeps", "rhat_target", "ess_target",
            "prevalence_prior", "max_draws", "memory_budget", "progress", "moves")

@@ -7,8 +7,11 @@ every so often whether each undecided specimen has a rank-normalised split R-hat
 ESS >= 400 (Vehtari et al. 2021); it stops there or at the sweep cap, and says which.
 
 Memory is bounded: diagnostics follow the specimens that can still be undecided (all of them when
-they fit the budget; otherwise those whose pilot estimates are near a threshold, widened and the
-followed from then on if another one drifts there), and draws are thinned to a few thousand.
+they fit the budget; otherwise those whose pilot estimates are near a threshold, and any other from
+the moment it drifts there), and draws are thinned to a few thousand.
+
+The diagnostics are computed on batch means of the Rao-Blackwellised probabilities, so the ESS
+counts effective batches (a conservative figure: at most about four per batch row).
 """
 from __future__ import annotations
 
