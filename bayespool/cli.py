@@ -191,26 +191,25 @@ def _run_demo(args):
 
 
 # ---- design
-def _int_list(text: str) -> list[int]:
+def _number_list(text: str, kind=float) -> list:
+    """Comma-separated numbers of one kind (int or float) for sweeps and lists of options."""
+    name = "whole numbers" if kind is int else "numbers"
     try:
-        values = [int(v) for v in text.split(",") if v.strip()]
+        values = [kind(v) for v in text.split(",") if v.strip()]
     except ValueError:
-        raise argparse.ArgumentTypeError(f"expected whole numbers separated by commas, got "
+        raise argparse.ArgumentTypeError(f"expected {name} separated by commas, got "
                                          f"{text!r}") from None
     if not values:
-        raise argparse.ArgumentTypeError("expected at least one whole number")
+        raise argparse.ArgumentTypeError(f"expected at least one of the {name}")
     return values
+
+
+def _int_list(text: str) -> list[int]:
+    return _number_list(text, int)
 
 
 def _float_list(text: str) -> list[float]:
-    try:
-        values = [float(v) for v in text.split(",") if v.strip()]
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected numbers separated by commas, got "
-                                         f"{text!r}") from None
-    if not values:
-        raise argparse.ArgumentTypeError("expected at least one number")
-    return values
+    return _number_list(text, float)
 
 
 def _read_assay_or_default(args):
