@@ -89,7 +89,47 @@ def _add_decode(sub):
     p.add_argument("--out", required=True, metavar="CSV", help="posterior: sample,probability,call,...")
     p.add_argument("--report", metavar="HTML", help="also write an offline HTML report")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    _add_gibbs_options(p)
     return p
+
+
+def _add_gibbs_options(p) -> None:
+    g = p.add_argument_group("Gibbs sampler (--method gibbs, or auto's fallback)")
+    g.add_argument("--chains", type=int, default=None, metavar="N",
+                   help="number of chains from spread starting points (default: 4)")
+    g.add_argument("--gibbs-sweeps", type=int, default=None, metavar="N",
+                   help="sweep cap per chain when R-hat <= 1.01 and ESS >= 400 are not reached "
+                   "sooner (default: 40000)")
+    g.add_argument("--prevalence-prior", default=None, metavar="A,B",
+                   help="treat the prevalence as unknown with a Beta(A, B) prior, shared by all "
+                   "samples and sampled jointly (replaces --prevalence and sample priors)")
+
+
+def _gibbs_options(args) -> dict:
+    return {"chains": args.chains, "max_sweeps": args.gibbs_sweeps,
+            "prevalence_prior": args.prevalence_prior}
+
+
+def _print_gibbs(post) -> None:
+    """The sampler's stop reason and joint answers, when it ran."""
+    d = post.diagnostics
+    if "gibbs" not in d:
+        return
+    print(f"Gibbs sampler: {d['gibbs']['stop']}")
+    pos = d.get("positives_posterior")
+    if pos:
+        lo, hi = pos["interval_95"]
+        print(f"  number of positive samples: mean {pos['mean']:.2f}, 95% credible interval "
+              f"{lo} to {hi}")
+    prev = d.get("prevalence_posterior")
+    if prev:
+        a, b = prev["interval_95"]
+        print(f"  prevalence: posterior mean {prev['mean']:.4f}, 95% interval {a:.4f} to {b:.4f}")
+    groups = d.get("ambiguity_groups") or []
+    for grp in groups[:10]:
+        print(f"  pool {', '.join(grp['pools'])}: {grp['text']}")
+    if len(groups) > 10:
+        print(f"  ... and {len(groups) - 10} more ambiguity group(s) (see --json)")
 
 
 def _run_decode(args):
@@ -101,7 +141,8 @@ def _run_decode(args):
     run, assay = _load_inputs(args)
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
                   positive_above=args.positive_above, seed=args.seed, damping=args.damping,
-                  tolerance=args.tolerance, max_sweeps=args.max_sweeps)
+                  tolerance=args.tolerance, max_sweeps=args.max_sweeps,
+                  gibbs_options=_gibbs_options(args))
     write_frame(post.to_frame(), args.out)
     if args.report:
         from .report import write_report
@@ -118,6 +159,7 @@ def _run_decode(args):
         print(f"{run.n_samples} samples, {run.n_pools} pools, {run.n_readouts} readouts, "
               f"decoded by {post.method}: {c['positive']} positive, {c['negative']} negative, "
               f"{c['inconclusive']} inconclusive")
+        _print_gibbs(post)
         print(f"wrote {args.out}" + (f" and {args.report}" if args.report else ""))
     return 0
 
@@ -149,26 +191,25 @@ def _run_demo(args):
 
 
 # ---- design
-def _int_list(text: str) -> list[int]:
+def _number_list(text: str, kind=float) -> list:
+    """Comma-separated numbers of one kind (int or float) for sweeps and lists of options."""
+    name = "whole numbers" if kind is int else "numbers"
     try:
-        values = [int(v) for v in text.split(",") if v.strip()]
+        values = [kind(v) for v in text.split(",") if v.strip()]
     except ValueError:
-        raise argparse.ArgumentTypeError(f"expected whole numbers separated by commas, got "
+        raise argparse.ArgumentTypeError(f"expected {name} separated by commas, got "
                                          f"{text!r}") from None
     if not values:
-        raise argparse.ArgumentTypeError("expected at least one whole number")
+        raise argparse.ArgumentTypeError(f"expected at least one of the {name}")
     return values
+
+
+def _int_list(text: str) -> list[int]:
+    return _number_list(text, int)
 
 
 def _float_list(text: str) -> list[float]:
-    try:
-        values = [float(v) for v in text.split(",") if v.strip()]
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected numbers separated by commas, got "
-                                         f"{text!r}") from None
-    if not values:
-        raise argparse.ArgumentTypeError("expected at least one number")
-    return values
+    return _number_list(text, float)
 
 
 def _read_assay_or_default(args):

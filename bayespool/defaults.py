@@ -3,7 +3,7 @@
 NEGATIVE_BELOW = 0.01   # call negative when P(positive) < this
 POSITIVE_ABOVE = 0.99   # call positive when P(positive) > this
 PREVALENCE = 0.01       # prior for samples without one
-METHODS = ("auto", "exact", "bp")
+METHODS = ("auto", "exact", "bp", "gibbs")
 
 # belief propagation (bayespool.decode.bp)
 BP_MAX_SWEEPS = 200     # iteration cap

@@ -24,6 +24,18 @@ _RESULT = {**{w: 1 for w in POSITIVE_WORDS}, **{w: 0 for w in NEGATIVE_WORDS},
            **{w: -1 for w in INVALID_WORDS}}
 
 
+def parse_results(table: Table, column: str = "result") -> np.ndarray:
+    """Result words of a table as 1 (positive), 0 (negative) or -1 (invalid, to be skipped)."""
+    f = table.frame
+    words = f[column].str.lower().map(_RESULT)
+    unknown = words.isna().to_numpy()
+    if unknown.any():
+        r = int(np.flatnonzero(unknown)[0])
+        raise table.error(f"result {f[column].iat[r]!r} is not one of positive/negative "
+                          "(also pos/neg, 1/0) or invalid", r, column)
+    return words.to_numpy(dtype=np.int64)
+
+
 def check_prevalence(value, name: str = "--prevalence") -> float:
     """A prevalence strictly between 0 and 1 (NaN and infinities refused)."""
     try:
@@ -243,13 +255,7 @@ class Run:
                          "their probability stays at the prior")
         if rd is not None:
             rf = rd.frame
-            words = rf["result"].str.lower().map(_RESULT)
-            unknown = words.isna().to_numpy()
-            if unknown.any():
-                r = int(np.flatnonzero(unknown)[0])
-                raise rd.error(f"result {rf['result'].iat[r]!r} is not one of positive/negative "
-                               "(also pos/neg, 1/0) or invalid", r, "result")
-            res = words.to_numpy(dtype=np.int64)
+            res = parse_results(rd)
             pidx = pd.Index(pool_ids).get_indexer(rf["pool"])
             missing = pidx < 0
             if missing.any():

@@ -14,7 +14,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..io import Table, read_table
-from ..run import _RESULT
+from ..run import parse_results
 
 COLUMNS = ["pool_size", "positives", "result"]
 
@@ -132,13 +132,7 @@ class ValidationData:
         if over.any():
             r = int(np.flatnonzero(over)[0])
             raise table.error(f"positives = {d[r]} exceeds pool_size = {k[r]}", r, "positives")
-        words = f["result"].str.lower().map(_RESULT)
-        unknown = words.isna().to_numpy()
-        if unknown.any():
-            r = int(np.flatnonzero(unknown)[0])
-            raise table.error(f"result {f['result'].iat[r]!r} is not one of positive/negative "
-                              "(also pos/neg, 1/0) or invalid", r, "result")
-        res = words.to_numpy(dtype=np.int64)
+        res = parse_results(table)
         keep = res >= 0
         skipped = int((~keep).sum())
         notes = [f"{skipped} invalid readout(s) skipped"] if skipped else []

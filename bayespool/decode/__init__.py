@@ -5,6 +5,8 @@ each with one decoder: ``exact`` enumerates a component's states, ``bp`` runs lo
 propagation, ``auto`` chooses per component by cost (:func:`choose_decoders`). Decoders are entries
 of :data:`PART_DECODERS` with one signature, so another decoder plugs in by registering itself; a
 component on which BP did not converge is handed to the decoder :func:`fallback_decoder` names.
+``gibbs`` samples the whole run jointly (bayespool.decode.gibbs), as does any method given an
+unknown prevalence (which links every sample).
 """
 from __future__ import annotations
 
@@ -131,11 +133,14 @@ def _gibbs_part(run, lik_ptr, loglik, comps, selected, options) -> DecodedPart:
     prob[fb.specimens] = fb.probability
     mcse = np.zeros(run.n_samples)
     mcse[fb.specimens] = fb.mcse
-    verdict = dict(fb.diagnostics).get("gibbs", {}).get("converged")
+    diag = dict(fb.diagnostics)
+    verdict = diag.get("gibbs", {}).get("converged")
     return DecodedPart("gibbs", np.asarray(selected, dtype=np.int64), np.asarray(fb.specimens),
                        prob, count_parts=[fb.count_distribution], mcse=mcse,
                        converged=None if verdict is None else bool(verdict),
-                       diagnostics=dict(fb.diagnostics), warnings=[fb.note])
+                       diagnostics={**diag["gibbs"],
+                                    "ambiguity_groups": diag.get("ambiguity_groups", [])},
+                       warnings=[fb.note])
 
 
 # ---- which decoder for which component
@@ -216,14 +221,15 @@ def decode(run: Run, assay, method: str = "auto",
            positive_above: float = DEFAULT_POSITIVE_ABOVE,
            seed=None, exact_limit: int = EXACT_LIMIT, damping: float = DAMPING,
            tolerance: float = TOLERANCE, max_sweeps: int = MAX_SWEEPS,
-           progress: bool | None = None) -> Posterior:
+           progress: bool | None = None, gibbs_options: dict | None = None) -> Posterior:
     """Posterior P(x_i = 1 | readouts) for every specimen of ``run`` under ``assay``.
 
     ``method`` is one of :data:`METHODS`. ``damping``, ``tolerance`` and ``max_sweeps`` steer belief
     propagation (see :mod:`bayespool.decode.bp`); ``progress`` shows sweeps on stderr (default: when
-    it is a terminal and the run is large).
+    it is a terminal and the run is large). ``gibbs_options`` go to the Gibbs sampler (chains,
+    max_sweeps, prevalence_prior, ...; see :meth:`bayespool.decode.gibbs.GibbsSampler.sample`).
     """
-    if method not in METHODS or (method != "auto" and method not in PART_DECODERS):
+    if method not in METHODS or (method not in ("auto", "gibbs") and method not in PART_DECODERS):
         raise InputError(f"unknown method {method!r} (choose one of {', '.join(METHODS)})")
     lo, hi = check_thresholds(negative_below, positive_above)
     _check_bp_options(damping, tolerance, max_sweeps)
@@ -232,11 +238,23 @@ def decode(run: Run, assay, method: str = "auto",
                          "lists any", run.sources.get("layout"))
     lik_ptr, loglik = run.log_likelihood(assay)
     _check_pools_possible(run, lik_ptr, loglik)
+    shared = (gibbs_options or {}).get("prevalence_prior") is not None
+    if shared and method not in ("auto", "gibbs"):
+        raise InputError("an unknown prevalence (--prevalence-prior) links every sample; use "
+                         "--method gibbs or auto")
+    if method == "gibbs" or shared:
+        from .gibbs import decode_gibbs
+        post = decode_gibbs(run, lik_ptr, loglik, lo, hi, seed, gibbs_options,
+                            columns=sample_columns(run))
+        if method != "gibbs":
+            post.warnings.append("an unknown prevalence links every sample: decoded by the Gibbs "
+                                 "sampler")
+        return post
     comps = components(run)
     choice = choose_decoders(run, comps, method, exact_limit)
     options = {"exact_limit": exact_limit, "damping": damping, "tolerance": tolerance,
                "max_sweeps": max_sweeps, "progress": progress, "seed": seed,
-               "negative_below": lo, "positive_above": hi}
+               "negative_below": lo, "positive_above": hi, "gibbs_options": gibbs_options}
     parts = []
     for name in choice.names():
         part = PART_DECODERS[name](run, lik_ptr, loglik, comps, choice.components(name), options)
@@ -333,6 +351,9 @@ def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, l
         for key, value in p.diagnostics.items():
             if p.method != "bp":
                 diagnostics.setdefault(p.method, {})[key] = value
+    groups = diagnostics.get("gibbs", {}).pop("ambiguity_groups", None)
+    if groups is not None:  # joint answers of the sampler's part, where the report looks
+        diagnostics["ambiguity_groups"] = groups
     warnings = list(run.notes) + [w for p in parts for w in p.warnings]
     return Posterior(run.sample_ids, prob, run.prior, "+".join(names) or "exact", sample_method,
                      lo, hi, log_evidence=log_evidence, mcse=mcse, count_distribution=dist,
