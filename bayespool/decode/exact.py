@@ -2,8 +2,10 @@
 
 States are visited in Gray-code order, so each step flips one specimen and updates only the positive
 counts of that specimen's pools: a state costs the flipped specimen's number of pools plus the
-accumulation. Weights are kept in the log domain against a running maximum; pools whose likelihood is
-zero (Se = 1 or Sp = 1) are counted rather than summed, so hard constraints are exact and never NaN.
+accumulation. The walk stores every state's log weight (shared with the exact sampler in
+:mod:`bayespool.decode.exact_sample`); pools whose likelihood is zero (Se = 1 or Sp = 1) are counted
+rather than summed, so hard constraints are exact and never NaN. Marginals are then accumulated
+against the largest weight.
 Besides the marginals it returns each component's log evidence and the distribution of its number of
 positive specimens.
 """
@@ -19,103 +21,102 @@ EXACT_LIMIT = 22  # largest component enumerated: 2**22 = 4.2 million states
 
 
 @njit(cache=True)
+def _state_log_weights(s0, m, csamples, cpools_a, cpools_b, cpools, sample_ptr, sample_pools,
+                       lik_ptr, loglik, log_p, log_q, d, is_read, out):
+    """Log weight of every state of one component; out[g] is the state with mask g ^ (g >> 1)."""
+    for a in range(cpools_a, cpools_b):
+        is_read[cpools[a]] = True
+    finite = 0.0
+    n_inf = 0
+    for a in range(cpools_a, cpools_b):
+        v = loglik[lik_ptr[cpools[a]]]
+        if v == -np.inf:
+            n_inf += 1
+        else:
+            finite += v
+    prior_sum = 0.0
+    for b in range(m):
+        prior_sum += log_q[csamples[s0 + b]]
+    mask = np.int64(0)
+    n_states = np.int64(1) << m
+    for g in range(n_states):
+        if g > 0:
+            j = 0
+            while ((g >> j) & 1) == 0:
+                j += 1
+            i = csamples[s0 + j]
+            up = ((mask >> j) & 1) == 0
+            mask ^= np.int64(1) << j
+            if up:
+                prior_sum += log_p[i] - log_q[i]
+            else:
+                prior_sum += log_q[i] - log_p[i]
+            for a in range(sample_ptr[i], sample_ptr[i + 1]):
+                t = sample_pools[a]
+                if not is_read[t]:
+                    continue
+                old = loglik[lik_ptr[t] + d[t]]
+                d[t] += 1 if up else -1
+                new = loglik[lik_ptr[t] + d[t]]
+                if old == -np.inf:
+                    n_inf -= 1
+                else:
+                    finite -= old
+                if new == -np.inf:
+                    n_inf += 1
+                else:
+                    finite += new
+        out[g] = -np.inf if n_inf > 0 else prior_sum + finite
+    for a in range(cpools_a, cpools_b):
+        d[cpools[a]] = 0
+        is_read[cpools[a]] = False
+
+
+@njit(cache=True)
 def _enumerate(comp_list, csptr, csamples, cpptr, cpools, sample_ptr, sample_pools, lik_ptr,
                loglik, log_p, log_q, count_ptr, prob, log_z, counts):
+    """Marginals, log evidence and count distribution of every listed component."""
     n_pools = len(lik_ptr) - 1
     d = np.zeros(n_pools, dtype=np.int32)
     is_read = np.zeros(n_pools, dtype=np.bool_)
     for ci in range(len(comp_list)):
         c = comp_list[ci]
-        s0, s1 = csptr[c], csptr[c + 1]
-        m = s1 - s0
-        for a in range(cpptr[c], cpptr[c + 1]):
-            is_read[cpools[a]] = True
-        finite = 0.0
-        n_inf = 0
-        for a in range(cpptr[c], cpptr[c + 1]):
-            v = loglik[lik_ptr[cpools[a]]]
-            if v == -np.inf:
-                n_inf += 1
-            else:
-                finite += v
-        prior_sum = 0.0
-        for b in range(m):
-            prior_sum += log_q[csamples[s0 + b]]
+        s0 = csptr[c]
+        m = csptr[c + 1] - s0
+        n_states = np.int64(1) << m
+        lw = np.empty(n_states)
+        _state_log_weights(s0, m, csamples, cpptr[c], cpptr[c + 1], cpools, sample_ptr,
+                           sample_pools, lik_ptr, loglik, log_p, log_q, d, is_read, lw)
+        top = lw.max()
+        if top == -np.inf:
+            log_z[c] = -np.inf
+            for b in range(m):
+                prob[csamples[s0 + b]] = np.nan
+            continue
         acc = np.zeros(m)
         cnt = np.zeros(m + 1)
         z = 0.0
-        top = -np.inf
-        mask = np.int64(0)
-        ones = 0
-        n_states = np.int64(1) << m
         for g in range(n_states):
-            if g > 0:
-                j = 0
-                while ((g >> j) & 1) == 0:
-                    j += 1
-                i = csamples[s0 + j]
-                up = ((mask >> j) & 1) == 0
-                mask ^= np.int64(1) << j
-                if up:
-                    ones += 1
-                    prior_sum += log_p[i] - log_q[i]
-                else:
-                    ones -= 1
-                    prior_sum += log_q[i] - log_p[i]
-                for a in range(sample_ptr[i], sample_ptr[i + 1]):
-                    t = sample_pools[a]
-                    if not is_read[t]:
-                        continue
-                    old = loglik[lik_ptr[t] + d[t]]
-                    if up:
-                        d[t] += 1
-                    else:
-                        d[t] -= 1
-                    new = loglik[lik_ptr[t] + d[t]]
-                    if old == -np.inf:
-                        n_inf -= 1
-                    else:
-                        finite -= old
-                    if new == -np.inf:
-                        n_inf += 1
-                    else:
-                        finite += new
-            if n_inf > 0:
+            if lw[g] == -np.inf:
                 continue
-            lw = prior_sum + finite
-            if lw > top:
-                if top > -np.inf:
-                    scale = np.exp(top - lw)
-                    z *= scale
-                    for b in range(m):
-                        acc[b] *= scale
-                    for b in range(m + 1):
-                        cnt[b] *= scale
-                top = lw
-            w = np.exp(lw - top)
+            w = np.exp(lw[g] - top)
             z += w
-            cnt[ones] += w
-            rest = mask
+            rest = g ^ (g >> 1)
+            ones = 0
             while rest:
                 low = rest & -rest
                 b = 0
                 while (low >> b) != 1:
                     b += 1
                 acc[b] += w
+                ones += 1
                 rest ^= low
-        for a in range(cpptr[c], cpptr[c + 1]):
-            d[cpools[a]] = 0
-            is_read[cpools[a]] = False
-        if z > 0.0:
-            log_z[c] = top + np.log(z)
-            for b in range(m):
-                prob[csamples[s0 + b]] = acc[b] / z
-            for b in range(m + 1):
-                counts[count_ptr[c] + b] = cnt[b] / z
-        else:
-            log_z[c] = -np.inf
-            for b in range(m):
-                prob[csamples[s0 + b]] = np.nan
+            cnt[ones] += w
+        log_z[c] = top + np.log(z)
+        for b in range(m):
+            prob[csamples[s0 + b]] = acc[b] / z
+        for b in range(m + 1):
+            counts[count_ptr[c] + b] = cnt[b] / z
 
 
 def check_component_sizes(comps: Components, selected: np.ndarray, limit: int = EXACT_LIMIT):

@@ -2,10 +2,9 @@
 
 The planner needs joint draws of the statuses, not only marginals: within a positive pool the
 members are negatively correlated ("exactly one of them is positive"), and the value of a split
-depends on it. For a component of m specimens this kernel walks the 2^m states in Gray-code order
-(one specimen flipped per step, only its pools' positive counts updated, as in
-:mod:`bayespool.decode.exact`), stores each state's log weight, and draws states by inverse
-transform on the cumulative weights. Hard constraints (Se or Sp of 1) are log 0: such states get
+depends on it. For a component of m specimens it takes the log weight of every state from the
+Gray-code walk of :mod:`bayespool.decode.exact` and draws states by inverse transform on the
+cumulative weights. Hard constraints (Se or Sp of 1) are log 0: such states get
 weight zero, never NaN.
 """
 from __future__ import annotations
@@ -13,59 +12,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from .exact import EXACT_LIMIT, impossible
-
-
-@njit(cache=True)
-def _state_log_weights(s0, m, csamples, cpools_a, cpools_b, cpools, sample_ptr, sample_pools,
-                       lik_ptr, loglik, log_p, log_q, d, is_read, out):
-    """Log weight of every state of one component; out[g] is the state with mask g ^ (g >> 1)."""
-    for a in range(cpools_a, cpools_b):
-        is_read[cpools[a]] = True
-    finite = 0.0
-    n_inf = 0
-    for a in range(cpools_a, cpools_b):
-        v = loglik[lik_ptr[cpools[a]]]
-        if v == -np.inf:
-            n_inf += 1
-        else:
-            finite += v
-    prior_sum = 0.0
-    for b in range(m):
-        prior_sum += log_q[csamples[s0 + b]]
-    mask = np.int64(0)
-    n_states = np.int64(1) << m
-    for g in range(n_states):
-        if g > 0:
-            j = 0
-            while ((g >> j) & 1) == 0:
-                j += 1
-            i = csamples[s0 + j]
-            up = ((mask >> j) & 1) == 0
-            mask ^= np.int64(1) << j
-            if up:
-                prior_sum += log_p[i] - log_q[i]
-            else:
-                prior_sum += log_q[i] - log_p[i]
-            for a in range(sample_ptr[i], sample_ptr[i + 1]):
-                t = sample_pools[a]
-                if not is_read[t]:
-                    continue
-                old = loglik[lik_ptr[t] + d[t]]
-                d[t] += 1 if up else -1
-                new = loglik[lik_ptr[t] + d[t]]
-                if old == -np.inf:
-                    n_inf -= 1
-                else:
-                    finite -= old
-                if new == -np.inf:
-                    n_inf += 1
-                else:
-                    finite += new
-        out[g] = -np.inf if n_inf > 0 else prior_sum + finite
-    for a in range(cpools_a, cpools_b):
-        d[cpools[a]] = 0
-        is_read[cpools[a]] = False
+from .exact import EXACT_LIMIT, _state_log_weights, impossible
 
 
 @njit(cache=True)
