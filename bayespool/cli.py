@@ -344,8 +344,9 @@ def _add_simulate(sub):
                        "specimen with Monte Carlo standard errors. Comma-separated prevalences or "
                        "pool sizes make a sweep. " + CAUTION)
     p.add_argument("--scheme", required=True, metavar="SCHEME",
-                   help="protocol: individual, dorfman (classic two-stage) or array (rows, "
-                   "columns, then crossings)")
+                   help="protocol: individual, dorfman (classic two-stage), array (rows, "
+                   "columns, then crossings) or bayes (decode, plan the next --tests, read, "
+                   "repeat until every specimen is decided)")
     p.add_argument("--samples", required=True, metavar="N|CSV",
                    help="specimens per cohort, or a samples file (its prior column is used)")
     p.add_argument("--prevalence", type=_float_list, metavar="P[,P...]",
