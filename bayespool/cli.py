@@ -167,8 +167,9 @@ def _run_decode(args):
 # ---- demo
 def _add_demo(sub):
     p = sub.add_parser("demo", help="run the whole job on built-in invented data",
-                       description="Decode an invented screening run end to end and write every "
-                       "file into a folder. The data is invented for demonstration only.")
+                       description="Calibrate the assay, decode a screening run, plan the next "
+                       "tests and write the report, on invented data, every file into one "
+                       "folder. The data is invented for demonstration only.")
     p.add_argument("--out-dir", default="bayespool-demo", metavar="DIR",
                    help="folder for the demo's files (default: ./%(default)s)")
     return p
@@ -177,15 +178,20 @@ def _add_demo(sub):
 def _run_demo(args):
     from .demo import run_demo
     result = run_demo(args.out_dir)
-    c = result.posterior.counts()
+    post, cal, nxt = result.posterior, result.calibration, result.plan
+    c = post.counts()
     agree = result.agreement()
-    print("bayespool demo: an invented screening run (not real data)")
-    print(f"  {result.posterior.n_samples} specimens, decoded by {result.posterior.method}: "
-          f"{c['positive']} positive, {c['negative']} negative, {c['inconclusive']} inconclusive")
-    print(f"  decided calls matching the invented truth: {agree['correct']} of {agree['decided']}")
+    print("bayespool demo: the whole job on an invented screening run (not real data)")
+    print(f"  1. calibrated the assay from {cal.summary()['readouts']} invented validation "
+          f"readouts: {cal.assay.describe()}")
+    print(f"  2. decoded {post.n_samples} specimens by {post.method}: {c['positive']} positive, "
+          f"{c['negative']} negative, {c['inconclusive']} inconclusive "
+          f"(decided calls matching the invented truth: {agree['correct']} of {agree['decided']})")
+    print(f"  3. planned {nxt.n_tests} next test(s) for the inconclusive specimens")
+    print(f"  4. wrote the report {result.files['report']}")
     print(f"  files in {result.folder}/:")
     for name, path in result.files.items():
-        print(f"    {name:<10} {path}")
+        print(f"    {name:<11} {path}")
     print("  " + CAUTION)
     return 0
 

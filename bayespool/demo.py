@@ -72,6 +72,8 @@ class DemoResult:
     posterior: Posterior
     files: dict = field(default_factory=dict)
     truth: pd.DataFrame | None = None
+    calibration: object = None
+    plan: object = None
 
     def agreement(self) -> dict:
         calls = pd.Series(self.posterior.calls(), index=self.posterior.sample_ids)
@@ -81,31 +83,52 @@ class DemoResult:
                 "correct": int((calls[decided] == truth[decided]).sum())}
 
 
+DEMO_NEXT_TESTS = 24  # a quarter plate of follow-up tests
+
+
 def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> DemoResult:
-    """Write the invented inputs, decode them, and write the posterior and its report into
-    ``folder``."""
+    """The whole job on invented data, every file written into ``folder``.
+
+    1. The statistician fits the assay from an invented validation set (the family by AIC) and
+       writes ``assay.toml`` with its sensitivity plot.
+    2. The assay scientist decodes the invented two-stage screening run with that assay.
+    3. The planner picks the next tests for the specimens left inconclusive.
+    4. One offline report shows the run, the calls, the plan and the calibration.
+    """
+    from .calibrate import calibrate_validation
+    from .calibrate.plot import write_plots
+    from .calibrate.validation import ValidationData
+    from .plan import plan
+    from .report import write_report
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     layout, readouts, samples, truth = invented_run(seed)
-    files = {"layout": folder / "layout.csv", "readouts": folder / "readouts.csv",
-             "samples": folder / "samples.csv", "assay": folder / "assay.toml",
-             "truth": folder / "invented_truth.csv", "posterior": folder / "posterior.csv",
+    files = {"validation": folder / "invented_validation.csv", "assay": folder / "assay.toml",
+             "layout": folder / "layout.csv", "readouts": folder / "readouts.csv",
+             "samples": folder / "samples.csv", "truth": folder / "invented_truth.csv",
+             "posterior": folder / "posterior.csv", "next_pools": folder / "next_pools.csv",
              "report": folder / "report.html"}
+    write_frame(invented_validation(seed), files["validation"])
+    calibration = calibrate_validation(ValidationData.read(files["validation"]), "best")
+    calibration.assay.write(files["assay"])
+    for kind, path in write_plots(calibration, files["assay"]).items():
+        files[f"curve_{kind}"] = Path(path)
     write_frame(layout, files["layout"])
     write_frame(readouts, files["readouts"])
     write_frame(samples, files["samples"])
     write_frame(truth, files["truth"])
-    DEMO_ASSAY.write(files["assay"])
     run = Run.read(files["layout"], files["readouts"], files["samples"], prevalence=PREVALENCE)
     assay = Assay.read(files["assay"])
     posterior = decode(run, assay, method="auto")
     write_frame(posterior.to_frame(), files["posterior"])
-    from .report import write_report
+    next_tests = plan(run, assay, posterior, tests=DEMO_NEXT_TESTS, seed=seed)
+    write_frame(next_tests.to_frame(), files["next_pools"])
     write_report(files["report"], run=run, assay=assay, posterior=posterior,
+                 plan=next_tests.to_frame(), calibration=calibration,
                  title="bayespool demo run (invented data)",
                  notes=["All data of this run is invented for the demonstration; it is not real "
                         "and checks nothing."])
-    return DemoResult(folder, posterior, files, truth)
+    return DemoResult(folder, posterior, files, truth, calibration, next_tests)
 
 
 # ---- calibration demo: kept apart from the screening demo above
