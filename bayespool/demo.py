@@ -131,7 +131,7 @@ def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> De
     return DemoResult(folder, posterior, files, truth, calibration, next_tests)
 
 
-# ---- calibration demo: kept apart from the screening demo above
+# ---- the invented validation set behind the demo's calibration
 def invented_validation(seed: int = DEMO_SEED) -> pd.DataFrame:
     """An invented validation set (spiked pools with a known number of positives) read through
     DEMO_ASSAY: ``pool_size,positives,result``. Invented for the demonstration, not real data."""
@@ -143,19 +143,3 @@ def invented_validation(seed: int = DEMO_SEED) -> pd.DataFrame:
     y = DEMO_ASSAY.draw_readouts(k, d, rng)
     return pd.DataFrame({"pool_size": k, "positives": d,
                          "result": np.where(y, "positive", "negative")})
-
-
-def run_calibration_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED):
-    """Calibrate the assay from the invented validation set; write the validation file, the fitted
-    assay file and its sensitivity plot into ``folder``. Returns the Calibration."""
-    from .calibrate import calibrate_validation
-    from .calibrate.plot import write_plots
-    from .calibrate.validation import ValidationData
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    path = folder / "invented_validation.csv"
-    write_frame(invented_validation(seed), path)
-    result = calibrate_validation(ValidationData.read(path), "best")
-    result.assay.write(folder / "calibrated_assay.toml")
-    write_plots(result, folder / "calibrated_assay.toml")
-    return result

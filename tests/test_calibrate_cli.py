@@ -236,14 +236,13 @@ def test_table_model_without_single_positive_cells_warns_and_decodes(cli, tmp_pa
     assert entries[(4, 1)] == pytest.approx(0.9, abs=1e-9)   # 18 of 20
 
 
-def test_calibration_demo_writes_its_invented_files(tmp_path):
-    from bayespool.demo import run_calibration_demo
-    result = run_calibration_demo(tmp_path)
-    for name in ("invented_validation.csv", "calibrated_assay.toml",
-                 "calibrated_assay-curve.png", "calibrated_assay-curve.svg"):
+def test_demo_calibrates_from_its_invented_validation_set(tmp_path):
+    from bayespool.demo import run_demo
+    result = run_demo(tmp_path)
+    for name in ("invented_validation.csv", "assay.toml", "assay-curve.png", "assay-curve.svg"):
         assert (tmp_path / name).exists()
-    assert Assay.read(tmp_path / "calibrated_assay.toml").details["method"] == "validation"
-    assert result.model in ("constant", "dilution", "table")
+    assert Assay.read(tmp_path / "assay.toml").details["method"] == "validation"
+    assert result.calibration.model in ("constant", "dilution", "table")
 
 
 def test_fixed_values_that_rule_out_the_data_exit_2(cli, tmp_path, validation):
