@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 import warnings
 
@@ -737,3 +738,16 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print(f"bayespool {args.command}: interrupted", file=sys.stderr)
         return 130
+
+
+def console() -> None:
+    """The console entry point: run ``main`` and leave without interpreter teardown.
+
+    Tearing down numpy, pandas and numba at exit costs about a quarter of a second on every
+    command; all outputs are already closed (atomic renames) when ``main`` returns, so only the
+    standard streams need flushing.
+    """
+    code = main()
+    sys.stdout.flush()
+    sys.stderr.flush()
+    os._exit(code)

@@ -78,8 +78,32 @@ def _first_repeated_pair(rows, cols, n_rows: int, n_cols: int) -> int:
     return int(first_repeated_pair(rows, cols, ptr, n_cols))
 
 
+class PoolIncidence:
+    """Sizes of a set of pools over specimens held as ``sample_ids``, ``pool_ids`` and CSR
+    ``pool_ptr``/``pool_members``; shared by a run and a design."""
+
+    @property
+    def n_samples(self) -> int:
+        return len(self.sample_ids)
+
+    @property
+    def n_pools(self) -> int:
+        return len(self.pool_ids)
+
+    @property
+    def n_memberships(self) -> int:
+        return len(self.pool_members)
+
+    @property
+    def pool_size(self) -> np.ndarray:
+        return np.diff(self.pool_ptr).astype(np.int64)
+
+    def members(self, t: int) -> np.ndarray:
+        return self.pool_members[self.pool_ptr[t]:self.pool_ptr[t + 1]]
+
+
 @dataclass(eq=False)
-class Run:
+class Run(PoolIncidence):
     """Specimens, pools and readouts of one batch.
 
     ``pool_ptr``/``pool_members``: members of pool t are ``pool_members[pool_ptr[t]:pool_ptr[t+1]]``.
@@ -101,29 +125,9 @@ class Run:
     sources: dict = field(default_factory=dict)
     notes: list = field(default_factory=list)
 
-    # ---- sizes
-    @property
-    def n_samples(self) -> int:
-        return len(self.sample_ids)
-
-    @property
-    def n_pools(self) -> int:
-        return len(self.pool_ids)
-
-    @property
-    def n_memberships(self) -> int:
-        return len(self.pool_members)
-
-    @property
-    def pool_size(self) -> np.ndarray:
-        return np.diff(self.pool_ptr).astype(np.int64)
-
     @property
     def n_readouts(self) -> int:
         return int(self.n_positive.sum() + self.n_negative.sum())
-
-    def members(self, t: int) -> np.ndarray:
-        return self.pool_members[self.pool_ptr[t]:self.pool_ptr[t + 1]]
 
     def pools_of(self, i: int) -> np.ndarray:
         return self.sample_pools[self.sample_ptr[i]:self.sample_ptr[i + 1]]

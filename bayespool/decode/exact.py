@@ -73,6 +73,18 @@ def _state_log_weights(s0, m, csamples, cpools_a, cpools_b, cpools, sample_ptr, 
 
 
 @njit(cache=True)
+def _component_log_weights(c, csptr, csamples, cpptr, cpools, sample_ptr, sample_pools, lik_ptr,
+                           loglik, log_p, log_q, d, is_read):
+    """Log weights of every state of component ``c`` (index g: Gray-code state g ^ (g >> 1))."""
+    s0 = csptr[c]
+    m = csptr[c + 1] - s0
+    lw = np.empty(np.int64(1) << m)
+    _state_log_weights(s0, m, csamples, cpptr[c], cpptr[c + 1], cpools, sample_ptr,
+                       sample_pools, lik_ptr, loglik, log_p, log_q, d, is_read, lw)
+    return s0, m, lw
+
+
+@njit(cache=True)
 def _enumerate(comp_list, csptr, csamples, cpptr, cpools, sample_ptr, sample_pools, lik_ptr,
                loglik, log_p, log_q, count_ptr, prob, log_z, counts):
     """Marginals, log evidence and count distribution of every listed component."""
@@ -81,12 +93,10 @@ def _enumerate(comp_list, csptr, csamples, cpptr, cpools, sample_ptr, sample_poo
     is_read = np.zeros(n_pools, dtype=np.bool_)
     for ci in range(len(comp_list)):
         c = comp_list[ci]
-        s0 = csptr[c]
-        m = csptr[c + 1] - s0
-        n_states = np.int64(1) << m
-        lw = np.empty(n_states)
-        _state_log_weights(s0, m, csamples, cpptr[c], cpptr[c + 1], cpools, sample_ptr,
-                           sample_pools, lik_ptr, loglik, log_p, log_q, d, is_read, lw)
+        s0, m, lw = _component_log_weights(c, csptr, csamples, cpptr, cpools, sample_ptr,
+                                           sample_pools, lik_ptr, loglik, log_p, log_q, d,
+                                           is_read)
+        n_states = len(lw)
         top = lw.max()
         if top == -np.inf:
             log_z[c] = -np.inf

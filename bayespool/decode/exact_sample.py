@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from .exact import EXACT_LIMIT, _state_log_weights, impossible
+from .exact import EXACT_LIMIT, _component_log_weights, impossible
 
 
 @njit(cache=True)
@@ -24,12 +24,10 @@ def _sample_components(comp_list, csptr, csamples, cpptr, cpools, sample_ptr, sa
     is_read = np.zeros(len(lik_ptr) - 1, dtype=np.bool_)
     for ci in range(len(comp_list)):
         c = comp_list[ci]
-        s0 = csptr[c]
-        m = csptr[c + 1] - s0
-        n_states = np.int64(1) << m
-        lw = np.empty(n_states)
-        _state_log_weights(s0, m, csamples, cpptr[c], cpptr[c + 1], cpools, sample_ptr,
-                           sample_pools, lik_ptr, loglik, log_p, log_q, d, is_read, lw)
+        s0, m, lw = _component_log_weights(c, csptr, csamples, cpptr, cpools, sample_ptr,
+                                           sample_pools, lik_ptr, loglik, log_p, log_q, d,
+                                           is_read)
+        n_states = len(lw)
         top = lw.max()
         if top == -np.inf:
             ok[ci] = False

@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError
-from ..run import csr
+from ..run import PoolIncidence, csr
 
 
 def check_count(value, name: str, minimum: int = 1) -> int:
@@ -123,7 +123,7 @@ class DesignProperties:
 
 
 @dataclass(eq=False)
-class Design:
+class Design(PoolIncidence):
     """A pooling design: pool ``t`` holds specimens ``pool_members[pool_ptr[t]:pool_ptr[t+1]]``."""
 
     sample_ids: np.ndarray
@@ -131,18 +131,6 @@ class Design:
     pool_ptr: np.ndarray
     pool_members: np.ndarray
     properties: DesignProperties
-
-    @property
-    def n_samples(self) -> int:
-        return len(self.sample_ids)
-
-    @property
-    def n_pools(self) -> int:
-        return len(self.pool_ids)
-
-    @property
-    def pool_size(self) -> np.ndarray:
-        return np.diff(self.pool_ptr).astype(np.int64)
 
     @property
     def pools_per_sample(self) -> np.ndarray:
