@@ -414,3 +414,14 @@ def test_write_report_is_atomic_and_returns_the_path(tmp_path):
     assert target == tmp_path / "r.html"
     assert [p.name for p in tmp_path.iterdir()] == ["r.html"]
     assert "r.html" in target.read_text(encoding="utf-8")  # names itself in the header
+
+
+def test_calibration_section_names_what_a_past_run_fit_used(demo):
+    # A fit from past runs (latent truth) must not be described as a validation.
+    from bayespool.calibrate import calibrate_runs
+    folder = demo.result.folder
+    run = Run.read(folder / "layout.csv", folder / "readouts.csv")
+    fit = calibrate_runs(run, "constant")
+    page = build_report(run=run, assay=fit.assay, calibration=fit)
+    assert "past runs (pools and individual follow-up tests)" in page
+    assert "validation data" not in page

@@ -77,12 +77,14 @@ def observed_points(cells: pd.DataFrame | None) -> tuple[pd.DataFrame | None, pd
 
 def calibration_section(calibration, shown_cells: pd.DataFrame | None) -> str:
     summary = calibration.summary() if hasattr(calibration, "summary") else {}
+    latent = summary.get("kind") == "runs"
+    data = "past runs (pools and individual follow-up tests)" if latent else "validation data"
     body = el("h3", "Fit summary") + kv_table(summary or {})
     if shown_cells is not None and len(shown_cells):
         body += el("h3", "Observed against fitted detection") + el(
-            "p", "One row per pool size and number of positive members in the validation data. "
+            "p", f"One row per pool size and number of positive members in the {data}. "
             "The interval is the exact (Clopper-Pearson) 95% interval of the observed rate; the "
             "points are drawn on the curve in the assay section.", class_="muted") + el(
             "div", frame_table(shown_cells, class_="data cells"), class_="scroll")
     return section("calibration", "Calibration", body,
-                   "How well the fitted assay model matches the validation readouts.")
+                   f"How well the fitted assay model matches the {data}.")
