@@ -234,6 +234,21 @@ class TableFamily(Family):
         return [{p.name: float(v) for p, v in zip(self.params(), _rate(n, x))}]
 
 
+def check_fixed(fixed: dict, params, model: str, listed=None) -> None:
+    """Every value of ``fixed`` must name one of ``params`` and lie in its range (InputError).
+
+    ``listed``: the names to offer in the message (default: the parameters' own names).
+    """
+    known = {p.name: p for p in params}
+    for name, value in fixed.items():
+        if name not in known:
+            names = listed if listed is not None else list(known)
+            raise InputError(f"cannot fix {name!r}: the parameters of "
+                             f"{'these models' if model == 'best' else 'this model'} are "
+                             f"{', '.join(names)}")
+        known[name].check(value)
+
+
 def family(name: str, entries=None) -> Family:
     """The family called ``name`` (``entries`` are the (pool size, positives) of a table)."""
     if name == "constant":

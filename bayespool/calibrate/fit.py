@@ -17,7 +17,7 @@ from ..assay import Assay
 from ..errors import InputError
 from .binomial import CellLikelihood
 from .curve import CurveModel, covariance
-from .families import FAMILIES, Family, family
+from .families import FAMILIES, Family, check_fixed, family
 from .goodness import bootstrap_p_value, cell_frame, goodness_of_fit
 from .intervals import clopper_pearson
 from .mle import Optimum, Profiler, maximize, standard_errors, wald_interval
@@ -268,13 +268,8 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
                          "(positives >= 1), so the sensitivity cannot be estimated", data.source)
 
     candidates = FAMILIES if model == "best" else (model,)
-    known = {p.name: p for m in candidates for p in _family_for(m, cells).params()}
-    for name, value in fixed.items():
-        if name not in known:
-            raise InputError(f"cannot fix {name!r}: the parameters of "
-                             f"{'these models' if model == 'best' else 'this model'} are "
-                             f"{', '.join(['specificity'] + sorted(known))}")
-        known[name].check(value)
+    params = [p for m in candidates for p in _family_for(m, cells).params()]
+    check_fixed(fixed, params, model, ["specificity"] + sorted({p.name for p in params}))
     comparison = None
     if compare or model == "best":
         comparison = compare_families(cells, fixed, ll_sp, int(sp_free), source=data.source)

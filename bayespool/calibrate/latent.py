@@ -24,7 +24,7 @@ from ..errors import InputError
 from ..run import Run
 from .evidence import Evidence
 from .curve import CurveModel, covariance
-from .families import FAMILIES, Family, Param, family, probability
+from .families import FAMILIES, Family, Param, check_fixed, family, probability
 from .fit import (INTERVAL_NAMES, INTERVALS, LocalOptimum, edge_warnings, fit_details,
                   natural_interval)
 from .identify import identifiability
@@ -127,13 +127,8 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
         raise InputError(f"unknown model {model!r} (choose one of {', '.join(FAMILIES)} or best)")
     fixed = dict(fixed or {})
     candidates = FAMILIES if model == "best" else (model,)
-    known = {p.name: p for m in candidates for p in _params(_family_for_run(m, run, read))}
-    for name, value in fixed.items():
-        if name not in known:
-            raise InputError(f"cannot fix {name!r}: the parameters of "
-                             f"{'these models' if model == 'best' else 'this model'} are "
-                             f"{', '.join(known)}")
-        known[name].check(value)
+    check_fixed(fixed, [p for m in candidates for p in _params(_family_for_run(m, run, read))],
+                model)
     evidence = Evidence(run)
     if model == "best":
         fits = {name: _fit_run(run, name, fixed, read, evidence) for name in FAMILIES}
