@@ -7,27 +7,15 @@ merges the answer (the sampler's own accuracy is tested with the sampler).
 import importlib.machinery
 import sys
 import types
-from dataclasses import dataclass
 
 import numpy as np
 import pytest
 
 from bayespool.decode import decode
 from bayespool.decode.exact import decode_exact
+from bayespool.decode.gibbs.decode import Fallback  # the result type the real sampler returns
 
 from .test_bp import ASSAYS, loopy_run
-
-
-@dataclass
-class StandIn:
-    specimens: np.ndarray
-    probability: np.ndarray
-    mcse: np.ndarray
-    rhat: np.ndarray
-    ess: np.ndarray
-    count_distribution: np.ndarray
-    note: str
-    diagnostics: dict
 
 
 @pytest.fixture
@@ -40,7 +28,7 @@ def sampler_module(monkeypatch):
         prob, _, count_ptr, counts = decode_exact(run, lik_ptr, loglik, comps, selected)
         specimens = np.concatenate([comps.samples_of(int(c)) for c in selected])
         dist = counts[count_ptr[selected[0]]:count_ptr[selected[0] + 1]]
-        return StandIn(specimens, prob[specimens], np.full(len(specimens), 1e-3),
+        return Fallback(specimens, prob[specimens], np.full(len(specimens), 1e-3),
                        np.ones(len(specimens)), np.full(len(specimens), 400.0), dist,
                        f"{why}: stand-in sampler", {"gibbs": {"chains": 4, "converged": True}})
 

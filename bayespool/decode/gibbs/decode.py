@@ -11,6 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ...defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
 from ...errors import InputError
 from ..posterior import Posterior
 from .joint import ambiguity_groups, count_summary
@@ -121,8 +122,9 @@ class Fallback:
     diagnostics: dict
 
 
-def fallback(run, lik_ptr, loglik, comps, selected, why: str, seed=None, negative_below=0.01,
-             positive_above=0.99, options=None) -> Fallback:
+def fallback(run, lik_ptr, loglik, comps, selected, why: str, seed=None,
+             negative_below=NEGATIVE_BELOW, positive_above=POSITIVE_ABOVE,
+             options=None) -> Fallback:
     """Decode components ``selected`` by the sampler because ``why`` (e.g. "BP did not converge").
 
     The hook for ``auto``: the caller writes ``probability`` (and ``mcse``) into its arrays at
