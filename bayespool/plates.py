@@ -1,43 +1,22 @@
-"""Microplates: well names, the 96- and 384-well formats, and specimens placed on plates.
+"""Specimens placed on plates: positions, pipetting orders, well names.
 
-A well is a row letter and a column number (``A1``, ``b07``, ``P24``). The two standard formats are
-8 x 12 (96 wells) and 16 x 24 (384 wells), the ANSI/SLAS 1-2004 footprints (common practice).
-:func:`plate_positions` reads the ``plate`` and ``well`` columns of a samples table into 0-based
-rows and columns, refusing a well outside a 384-well plate or two specimens in one well.
+Well names and the 96/384 formats are :mod:`bayespool.wells`; :func:`plate_positions` reads the
+``plate`` and ``well`` columns of a samples table (checked there: real wells, one specimen each) into
+0-based rows and columns; :func:`fill_order` walks a plate as a multichannel pipette does.
 """
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
 from .errors import InputError
-
-WELL = re.compile(r"^\s*([A-Za-z])\s*0*([1-9][0-9]?)\s*$")
-FORMATS = {96: (8, 12), 384: (16, 24)}
-
-
-def parse_well(value) -> tuple[int, int] | None:
-    """0-based (row, column) of a well name such as ``A1`` or ``h12``; None if it is not one."""
-    m = WELL.match(str(value))
-    if not m:
-        return None
-    return ord(m.group(1).upper()) - ord("A"), int(m.group(2)) - 1
-
+from .wells import FORMATS, check_wells, parse_well, plate_format  # noqa: F401 (re-exported)
 
 def well_name(row: int, col: int) -> str:
     """``A1`` for (0, 0)."""
     return f"{chr(ord('A') + int(row))}{int(col) + 1}"
-
-
-def plate_format(rows, cols) -> int | None:
-    """96 or 384 for the smallest standard plate holding wells at these 0-based rows and columns."""
-    for wells, (n_rows, n_cols) in FORMATS.items():
-        if max(rows) < n_rows and max(cols) < n_cols:
-            return wells
-    return None
 
 
 def check_plate_size(value, name: str = "plate_size") -> int:
@@ -80,37 +59,34 @@ class Positions:
         return list(dict.fromkeys(self.plate[~self.missing].tolist()))
 
 
-def plate_positions(table: pd.DataFrame, ids, where: str = "samples") -> Positions | None:
-    """Positions from a table with ``well`` (and optionally ``plate``) columns, one row per
-    specimen in ``ids`` order; None without a ``well`` column. A malformed well, a well outside a
-    384-well plate and two specimens in one well are errors naming the specimens."""
-    if table is None or "well" not in table.columns:
+def plate_positions(table, ids, where: str = "samples") -> Positions | None:
+    """Positions from a samples table with ``well`` (and optionally ``plate``) columns, one row per
+    specimen in ``ids`` order; None without a ``well`` column. ``table`` is a
+    :class:`bayespool.io.Table` (errors name file, line and column) or a DataFrame (errors name the
+    row); wells are checked by :func:`bayespool.wells.check_wells`."""
+    from .io import FrameTable, Table
+    if table is None:
         return None
+    if not isinstance(table, Table):
+        if "well" not in table.columns:
+            return None
+        table = FrameTable(table, f"<{where}>", ["sample"], where)
+    f = table.frame
+    if "well" not in f.columns:
+        return None
+    check_wells(table)
     n = len(ids)
-    plate = (table["plate"].astype(str).str.strip().to_numpy(dtype=object)
-             if "plate" in table.columns else np.full(n, "", dtype=object))
+    plate = (f["plate"].astype(str).str.strip().to_numpy(dtype=object)
+             if "plate" in f.columns else np.full(n, "", dtype=object))
     row = np.full(n, -1, dtype=np.int64)
     col = np.full(n, -1, dtype=np.int64)
     missing = np.zeros(n, dtype=bool)
-    for i, value in enumerate(table["well"].astype(str).tolist()):
-        if value.strip() == "":
-            missing[i] = True
-            continue
+    for i, value in enumerate(f["well"].astype(str).tolist()):
         pos = parse_well(value)
         if pos is None:
-            raise InputError(f"{where}: well {value!r} of {ids[i]!r} is not a row letter and a "
-                             "column number")
-        if pos[0] >= FORMATS[384][0] or pos[1] >= FORMATS[384][1]:
-            raise InputError(f"{where}: well {value} of {ids[i]!r} is outside a 384-well plate")
-        row[i], col[i] = pos
-    seen = {}
-    for i in np.flatnonzero(~missing):
-        key = (plate[i], row[i], col[i])
-        if key in seen:
-            where_plate = f" of plate {plate[i]!r}" if plate[i] else ""
-            raise InputError(f"{where}: {ids[seen[key]]!r} and {ids[i]!r} are both in well "
-                             f"{well_name(row[i], col[i])}{where_plate}")
-        seen[key] = i
+            missing[i] = True
+        else:
+            row[i], col[i] = pos
     fmt = {}
     for name in dict.fromkeys(plate[~missing].tolist()):
         on = (plate == name) & ~missing

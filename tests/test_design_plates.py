@@ -110,7 +110,7 @@ def test_errors():
     with pytest.raises(InputError, match="--fill"):
         dorfman_design(20, pool_size=4, fill="rows")
     dup = pd.DataFrame({"sample": ["a", "b"], "plate": ["p", "p"], "well": ["A1", "a01"]})
-    with pytest.raises(InputError, match="both in well A1"):
+    with pytest.raises(InputError, match="already given"):
         array_design(dup)
 
 

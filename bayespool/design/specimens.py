@@ -14,6 +14,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..io import read_table
+from ..wells import check_wells
 
 
 @dataclass
@@ -56,6 +57,7 @@ def numbered(n: int) -> np.ndarray:
 def read_samples(path) -> Specimens:
     """The samples file: ``sample`` (unique, non-empty) and optional ``prior`` in (0, 1)."""
     table = read_table(path, ["sample"], "samples")
+    check_wells(table)
     f = table.frame
     if len(f) == 0:
         raise InputError("samples file lists no specimen", str(path))
@@ -68,14 +70,12 @@ def read_samples(path) -> Specimens:
         raise table.error(f"sample {f['sample'].iat[r]!r} is listed twice", r, "sample")
     prior = None
     if "prior" in f.columns:
-        raw = f["prior"].str.strip()
-        given = (raw != "").to_numpy()
-        vals = pd.to_numeric(raw.where(given, "nan"), errors="coerce").to_numpy(dtype=float)
+        vals, given = table.numbers("prior")
         bad = given & ~((vals > 0) & (vals < 1))
         if bad.any():
             r = int(np.flatnonzero(bad)[0])
-            raise table.error(f"prior {raw.iat[r]!r} must be a probability strictly between 0 "
-                              "and 1", r, "prior")
+            raise table.error(f"prior {f['prior'].iat[r].strip()!r} must be a probability "
+                              "strictly between 0 and 1", r, "prior")
         prior = vals
     return Specimens(f["sample"].to_numpy(dtype=object), prior, str(path),
                      f.reset_index(drop=True))

@@ -1,15 +1,16 @@
 """The plate map: each specimen in its well, coloured by its probability, the value printed in it.
 
 Drawn when the samples file has a ``well`` column (``plate`` too when there are several plates).
-Wells are a row letter and a column number (``A1``, ``B07``, ``P24``); a plate whose wells all fit
-8 x 12 is drawn as a 96-well plate, otherwise as a 384-well plate (16 x 24), the two standard
-microplate formats (ANSI/SLAS 1-2004 footprint, common practice). Specimens without a usable well
-are listed under the map; they are in the calls table like every other.
+Wells are read by :mod:`bayespool.wells` (the samples file refuses wells that are not real or
+taken twice); a plate whose wells all fit 8 x 12 is drawn as a 96-well plate, otherwise as a
+384-well plate. Specimens without a usable well are listed under the map; they are in the calls
+table like every other.
 """
 from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from ..wells import FORMATS, parse_well, plate_format
 from . import formatting as fmt
 from ..plates import FORMATS, parse_well, plate_format  # noqa: F401 (re-exported)
 from .escape import text
