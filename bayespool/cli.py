@@ -115,6 +115,60 @@ def _note(args, text: str) -> None:
     print(f"bayespool {args.command}: note: {text}", file=sys.stderr)
 
 
+# ---- assay
+def _add_assay(sub):
+    p = sub.add_parser("assay", help="show what an assay file implies: the model and Se(k, d)",
+                       description="Print an assay file's model and the sensitivity it implies "
+                       "for every pool size k and number of positive members d = 1..k (for a "
+                       "[ct] assay, integrated over the individual Cts of the positives). "
+                       + CAUTION)
+    p.add_argument("assay_file", metavar="ASSAY.toml", help="the assay file")
+    p.add_argument("--pool-sizes", type=_int_list, default=None, metavar="K,K,...",
+                   help="pool sizes to tabulate (default: 1,2,4,8,16,32, or a table's own sizes)")
+    p.add_argument("--plot", metavar="FILE", help="also draw the curve (.svg or .png)")
+    p.add_argument("--json", action="store_true",
+                   help='print {"specificity": ..., "sensitivity": [{"pool_size", "positives", '
+                   '"value"}, ...]}')
+    return p
+
+
+def _run_assay(args):
+    from .assay import Assay, sensitivity_table
+    plot = args.plot
+    if plot:
+        from .io import check_output_path
+        check_output_path(plot)
+        if not plot.lower().endswith((".svg", ".png")):
+            raise InputError(f"--plot {plot!r}: the file name must end in .svg or .png")
+        if os.path.abspath(plot) == os.path.abspath(args.assay_file):
+            raise InputError("--plot must not overwrite the assay file")
+    assay = Assay.read(args.assay_file)
+    table = sensitivity_table(assay, args.pool_sizes)
+    if plot:
+        from .report.plots import write_sensitivity_plot
+        write_sensitivity_plot(assay, plot, table["pool_size"].unique())
+    if args.json:
+        out = {"specificity": assay.specificity,
+               "sensitivity": [{"pool_size": int(r.pool_size), "positives": int(r.positives),
+                                "value": float(r.value)} for r in table.itertuples()]}
+        print(json.dumps(out, indent=2))
+        return 0
+    print(f"{args.assay_file}: {assay.describe()}")
+    sizes = list(table["pool_size"].unique())
+    shown = min(max(sizes), 8)
+    print(f"Se(k, d): P(a readout amplifies | pool of k, d positive members)"
+          + (f"; d > {shown} in --json" if max(sizes) > shown else ""))
+    print("     k " + "".join(f"{'d=' + str(d):>9}" for d in range(1, shown + 1)))
+    for k in sizes:
+        vals = table[table["pool_size"] == k].set_index("positives")["value"]
+        print(f"{k:>6} " + "".join(f"{vals[d]:>9.4f}" if d <= k else " " * 9
+                                   for d in range(1, shown + 1)))
+    print(f"no positive member: P(amplifies) = 1 - Sp = {1 - assay.specificity:.4g}")
+    if plot:
+        print(f"wrote {plot}")
+    return 0
+
+
 # ---- decode
 def _add_decode(sub):
     from .defaults import BP_DAMPING, BP_MAX_SWEEPS, BP_TOLERANCE, METHODS
@@ -752,6 +806,7 @@ def _run_plan(args):
 
 
 COMMANDS = {
+    "assay": (_add_assay, _run_assay),
     "decode": (_add_decode, _run_decode),
     "demo": (_add_demo, _run_demo),
     "design": (_add_design, _run_design),
