@@ -483,8 +483,6 @@ def _run_design(args):
         summary["out"] = args.out
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
-        if check is not None:
-            summary["controls"] = check.summary()
         print(json.dumps(_json_ready(summary), indent=2))
     else:
         print("\n".join(design.properties.lines()))
