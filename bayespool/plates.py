@@ -9,7 +9,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import pandas as pd
 
 from .errors import InputError
 from .wells import FORMATS, check_wells, parse_well, plate_format  # noqa: F401 (re-exported)

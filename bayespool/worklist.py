@@ -169,8 +169,8 @@ def build_worklist(layout: pd.DataFrame, samples: pd.DataFrame, *,
     owner, at = owner[order], at[order]
     volume = pool_volume / sizes[owner]
     frame = pd.DataFrame({
-        "source_plate": pos.plate[at], "source_well": [well_name(pos.row[i], pos.col[i])
-                                                         for i in at],
+        "source_plate": pos.plate[at],
+        "source_well": samples["well"].astype(str).str.strip().to_numpy(dtype=object)[at],
         "destination_plate": dest_plate[owner], "destination_well": dest_well[owner],
         "volume_ul": volume, "sample": ids[at], "pool": np.asarray(first, dtype=object)[owner]},
         columns=COLUMNS)

@@ -260,12 +260,8 @@ class SingleCall:
 
 def nearest_specimen(design: Design, positive_pools) -> SingleCall:
     """Decode a round assuming at most one positive: the word nearest to the readouts."""
-    mask = np.zeros(design.n_pools, dtype=bool)
-    pools = np.asarray(positive_pools)
-    if pools.dtype == bool:
-        mask[:] = pools
-    else:
-        mask[pools.astype(np.int64)] = True
+    from .disjunct import pool_mask
+    mask = pool_mask(design, positive_pools)
     y = np.uint64(int(np.sum(np.left_shift(np.uint64(1),
                                            np.flatnonzero(mask).astype(np.uint64)))))
     words = np.concatenate([np.zeros(1, dtype=np.uint64), design_words(design)])

@@ -12,14 +12,20 @@ import numpy as np
 from .base import Design
 
 
-def noiseless_decode(design: Design, positive_pools) -> np.ndarray:
-    """Boolean calls (n,) from the pools that read positive (bool mask over pools, or indices)."""
+def pool_mask(design: Design, positive_pools) -> np.ndarray:
+    """Bool (n_pools,) from the pools that read positive (a bool mask over pools, or indices)."""
     mask = np.zeros(design.n_pools, dtype=bool)
     pools = np.asarray(positive_pools)
     if pools.dtype == bool:
         mask[:] = pools
     else:
         mask[pools.astype(np.int64)] = True
+    return mask
+
+
+def noiseless_decode(design: Design, positive_pools) -> np.ndarray:
+    """Boolean calls (n,) from the pools that read positive (bool mask over pools, or indices)."""
+    mask = pool_mask(design, positive_pools)
     negative_members = design.pool_members[np.repeat(~mask, design.pool_size)]
     calls = np.ones(design.n_samples, dtype=bool)
     calls[negative_members] = False

@@ -23,6 +23,16 @@ DEFAULT_RELATIVE = 0.5          # a round takes tests telling at least half of i
 DEFAULT_MAX_ROUNDS = 40
 
 
+def decoder_settings(method, negative_below, positive_above) -> tuple[str, float, float]:
+    """The decoder and the two call thresholds of a decoding protocol, defaults filled in."""
+    from ...defaults import METHODS
+    method = "auto" if method is None else str(method)
+    if method not in METHODS:
+        raise InputError(f"unknown method {method!r} (choose one of {', '.join(METHODS)})")
+    return (method, NEGATIVE_BELOW if negative_below is None else float(negative_below),
+            POSITIVE_ABOVE if positive_above is None else float(positive_above))
+
+
 class BayesianLoop(Protocol):
     """Decode -> plan -> read, round after round, until every specimen is decided."""
 
@@ -37,17 +47,12 @@ class BayesianLoop(Protocol):
         per specimen over the whole loop; ``relative_information``: a round keeps tests worth at
         least this fraction of its best one; ``seed``: the planner's draws (else from the
         Tester)."""
-        from ...defaults import METHODS
         from ...plan import DEFAULT_MAX_POOL_SIZE
         from ...plan.draws import DEFAULT_DRAWS
         self.max_pool_size = DEFAULT_MAX_POOL_SIZE if max_pool_size is None else int(max_pool_size)
         self.tests_per_round = DEFAULT_TESTS_PER_ROUND if tests is None else int(tests)
-        self.method = "auto" if method is None else str(method)
-        if self.method not in METHODS:
-            raise InputError(f"unknown method {self.method!r} (choose one of "
-                             f"{', '.join(METHODS)})")
-        self.negative_below = NEGATIVE_BELOW if negative_below is None else float(negative_below)
-        self.positive_above = POSITIVE_ABOVE if positive_above is None else float(positive_above)
+        self.method, self.negative_below, self.positive_above = decoder_settings(
+            method, negative_below, positive_above)
         self.max_draws = max_draws  # total material per specimen over the whole loop
         self.n_draws = DEFAULT_DRAWS if n_draws is None else int(n_draws)
         self.relative_information = (DEFAULT_RELATIVE if relative_information is None

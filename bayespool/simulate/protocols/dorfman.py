@@ -21,6 +21,17 @@ from ...errors import InputError
 from ..protocol import Outcome, Protocol, Tester, singles
 
 
+def first_stage_size(scheme: str, pool_size, max_pool_size) -> int:
+    """The first-stage pool size of a two-stage scheme, checked against ``max_pool_size``."""
+    if pool_size is None:
+        raise InputError(f"the {scheme} scheme needs --pool-size K")
+    k = check_count(pool_size, "--pool-size")
+    limit = check_max_pool_size(max_pool_size)
+    if limit is not None and k > limit:
+        raise InputError(f"--pool-size {k} exceeds --max-pool-size {limit}")
+    return k
+
+
 @dataclass
 class BatchOutcome:
     """Outcomes of many runs: calls (runs, n) bool, tests and rounds (runs,), draws (runs, n)."""
@@ -37,12 +48,7 @@ class DorfmanTesting(Protocol):
     name = "dorfman"
 
     def __init__(self, pool_size: int | None = None, max_pool_size: int | None = None):
-        if pool_size is None:
-            raise InputError("the dorfman scheme needs --pool-size K")
-        self.pool_size = check_count(pool_size, "--pool-size")
-        limit = check_max_pool_size(max_pool_size)
-        if limit is not None and self.pool_size > limit:
-            raise InputError(f"--pool-size {self.pool_size} exceeds --max-pool-size {limit}")
+        self.pool_size = first_stage_size(self.name, pool_size, max_pool_size)
 
     def parameters(self):
         return {"pool_size": self.pool_size}

@@ -15,11 +15,11 @@ from functools import lru_cache
 
 import numpy as np
 
-from ...defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
-from ...design.base import check_count, check_max_pool_size
+from ...design.base import check_count
 from ...design.dorfman import dorfman_blocks
-from ...errors import InputError
 from ..protocol import Outcome, Protocol, Tester, singles
+from .bayes import decoder_settings
+from .dorfman import first_stage_size
 
 
 @lru_cache(maxsize=None)
@@ -38,19 +38,9 @@ class PoolThenCode(Protocol):
     def __init__(self, pool_size: int | None = None, max_pool_size: int | None = None,
                  method: str | None = None, negative_below: float | None = None,
                  positive_above: float | None = None, errors: int = 1):
-        from ...defaults import METHODS
-        if pool_size is None:
-            raise InputError("the pool-then-code scheme needs --pool-size K")
-        self.pool_size = check_count(pool_size, "--pool-size")
-        limit = check_max_pool_size(max_pool_size)
-        if limit is not None and self.pool_size > limit:
-            raise InputError(f"--pool-size {self.pool_size} exceeds --max-pool-size {limit}")
-        self.method = "auto" if method is None else str(method)
-        if self.method not in METHODS:
-            raise InputError(f"unknown method {self.method!r} (choose one of "
-                             f"{', '.join(METHODS)})")
-        self.negative_below = NEGATIVE_BELOW if negative_below is None else float(negative_below)
-        self.positive_above = POSITIVE_ABOVE if positive_above is None else float(positive_above)
+        self.pool_size = first_stage_size(self.name, pool_size, max_pool_size)
+        self.method, self.negative_below, self.positive_above = decoder_settings(
+            method, negative_below, positive_above)
         self.errors = check_count(errors, "errors")
 
     def parameters(self) -> dict:
