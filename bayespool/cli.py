@@ -19,6 +19,22 @@ CAUTION = ("Statistical decision support, not a diagnostic device: confirm resul
            "professional.")
 
 
+# Library errors name the Python parameter; the command line shows the flag that sets it. Flags
+# that are not "--" + the parameter with "-" for "_" are listed here, in this one place.
+FLAGS = {
+    "n_draws": "--posterior-draws",
+    'gibbs_options["chains"]': "--chains",
+    'gibbs_options["max_sweeps"]': "--gibbs-sweeps",
+    'gibbs_options["prevalence_prior"]': "--prevalence-prior",
+    'fixed["specificity"]': "--fix specificity=VALUE",
+}
+
+
+def flag(parameter: str) -> str:
+    """The command-line flag that sets a library parameter."""
+    return FLAGS.get(parameter) or "--" + parameter.replace("_", "-")
+
+
 class _Parser(argparse.ArgumentParser):
     """argparse with a one-line usage error (exit 2)."""
 
@@ -134,7 +150,7 @@ def _print_gibbs(post) -> None:
 
 
 def _run_decode(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import check_output_path, write_frame
     check_output_path(args.out)
     if args.report:
@@ -292,7 +308,7 @@ def _run_design(args):
         if args.assay:
             from .assay import Assay
             assay = Assay.read(args.assay)
-        opt = optimal_dorfman(args.prevalence, assay, args.max_pool_size)
+        opt = optimal_dorfman(args.prevalence, assay, max_pool_size=args.max_pool_size)
         summary["optimum"] = opt.to_dict()
         summary["optimum"]["assay"] = assay.describe() if assay else "error-free"
         if not args.json:
@@ -380,11 +396,10 @@ def _add_simulate(sub):
 
 
 def _run_simulate(args):
-    from .design.base import check_count
     from .io import check_output_path, write_frame
-    from .run import check_prevalence
-    from .simulate import simulate, sweep
-    from .simulate.protocols import accepted_options, make_protocol
+    from .validation import check_count, check_open_probability
+    from .simulation import simulate, sweep
+    from .simulation.protocols import accepted_options, make_protocol
     if args.out:
         check_output_path(args.out)
     prevs, sizes = args.prevalence, args.pool_size
@@ -400,26 +415,27 @@ def _run_simulate(args):
     for k in sizes or [None]:
         make_protocol(args.scheme, pool_size=k, **options)  # checks the options before any work
     for p in prevs or []:
-        check_prevalence(p)
-    check_count(args.runs, "--runs")
+        check_open_probability(p, "prevalence")
+    check_count(args.runs, "runs")
     from .design.specimens import specimens
     args.samples = specimens(args.samples)
     assay = _read_assay_or_default(args)
     progress = sys.stderr.isatty()
     if (prevs is None or len(prevs) == 1) and (sizes is None or len(sizes) == 1):
-        sim = simulate(args.scheme, args.samples, prevs[0] if prevs else None, assay,
+        sim = simulate(args.scheme, args.samples, prevalence=prevs[0] if prevs else None, assay=assay,
                        runs=args.runs, seed=args.seed, progress=progress,
                        pool_size=sizes[0] if sizes else None, **options)
         if args.out:
-            from .simulate.simulator import Sweep
+            from .simulation.simulator import Sweep
             write_frame(Sweep([sim]).table, args.out)
         if args.json:
             print(json.dumps(_json_ready(sim.to_dict()), indent=2))
         else:
             _print_simulation(sim, sim.characteristics.table())
     else:
-        result = sweep(args.scheme, args.samples, prevs, sizes if sizes and len(sizes) > 1
-                       else None, assay, runs=args.runs, seed=args.seed, progress=progress,
+        result = sweep(args.scheme, args.samples, prevalences=prevs,
+                       pool_sizes=sizes if sizes and len(sizes) > 1 else None, assay=assay,
+                       runs=args.runs, seed=args.seed, progress=progress,
                        **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}), **options)
         table = result.table
         if args.out:
@@ -558,9 +574,9 @@ def _add_calibrate(sub):
 
 def _run_calibrate(args):
     from .io import check_output_path
-    from .calibrate import calibrate_runs, calibrate_validation
-    from .calibrate.plot import figure, plot_paths, write_plots
-    from .calibrate.validation import ValidationData
+    from .calibration import calibrate_runs, calibrate_validation
+    from .calibration.plot import figure, plot_paths, write_plots
+    from .calibration.validation import ValidationData
     from .run import Run
     if args.validation and (args.layout or args.readouts or args.samples):
         raise InputError("give either --validation or --layout/--readouts, not both")
@@ -620,7 +636,7 @@ def _run_calibrate(args):
 # ---- plan
 def _add_plan(sub):
     from .defaults import METHODS
-    from .plan import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
+    from .planning import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
     p = sub.add_parser("plan", help="the next most informative pools for the undecided samples",
                        description="Choose the next batch of pools by expected information gain "
                        "about the undecided samples, given the readouts so far. An empty layout "
@@ -655,9 +671,9 @@ def _add_plan(sub):
 
 
 def _run_plan(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import check_output_path, write_frame
-    from .plan import plan
+    from .planning import plan
     report = args.report
     check_output_path(args.out)
     if report:
@@ -668,7 +684,7 @@ def _run_plan(args):
                          args.layout)
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
                   positive_above=args.positive_above, seed=args.seed)
-    result = plan(run, assay, post, tests=args.tests, max_pool_size=args.max_pool_size,
+    result = plan(run, assay, posterior=post, tests=args.tests, max_pool_size=args.max_pool_size,
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked)
     frame = result.to_frame()
@@ -728,7 +744,7 @@ def main(argv=None) -> int:
             warnings.simplefilter("ignore", UserWarning)
             return run(args)
     except InputError as exc:
-        print(f"bayespool {args.command}: error: {exc}", file=sys.stderr)
+        print(f"bayespool {args.command}: error: {exc.renamed(flag)}", file=sys.stderr)
         return 2
     except OSError as exc:
         name = getattr(exc, "filename", None)

@@ -6,7 +6,6 @@ nothing is dense. Replicate readouts of a pool are folded into counts of positiv
 """
 from __future__ import annotations
 
-import math
 import warnings
 from dataclasses import dataclass, field
 
@@ -16,6 +15,7 @@ import pandas as pd
 from .defaults import PREVALENCE
 from .errors import InputError
 from .io import CodedTable, Table, read_id_table, read_table
+from .validation import check_open_probability
 
 POSITIVE_WORDS = ("positive", "pos", "1")
 NEGATIVE_WORDS = ("negative", "neg", "0")
@@ -34,17 +34,6 @@ def parse_results(table: Table, column: str = "result") -> np.ndarray:
         raise table.error(f"result {f[column].iat[r]!r} is not one of positive/negative "
                           "(also pos/neg, 1/0) or invalid", r, column)
     return words.to_numpy(dtype=np.int64)
-
-
-def check_prevalence(value, name: str = "--prevalence") -> float:
-    """A prevalence strictly between 0 and 1 (NaN and infinities refused)."""
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{name} must be a number strictly between 0 and 1, got {value!r}") from None
-    if not (0.0 < v < 1.0):
-        raise InputError(f"{name} must be strictly between 0 and 1, got {value!r}")
-    return v
 
 
 _COUNTING_SORT_FROM = 1 << 16  # pairs; below this a NumPy sort is as fast and needs no numba
@@ -163,7 +152,8 @@ class Run(PoolIncidence):
                    pool_ptr, pool_members, sample_ptr, sample_pools, npos, nneg)
 
     @classmethod
-    def read(cls, layout, readouts=None, samples=None, prevalence: float = PREVALENCE) -> "Run":
+    def read(cls, layout, readouts=None, samples=None, *,
+             prevalence: float = PREVALENCE) -> "Run":
         """Read and validate the layout, readouts and samples files (interface.md)."""
         lay = read_id_table(layout, ("pool", "sample"), "layout")
         rd = read_table(readouts, ["pool", "result"], "readouts") if readouts is not None else None
@@ -195,7 +185,7 @@ class Run(PoolIncidence):
 
     @classmethod
     def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence) -> "Run":
-        prevalence = check_prevalence(prevalence)
+        prevalence = check_open_probability(prevalence, "prevalence")
         # IDs are factorised once (a large plain file comes already coded); every later check
         # works on the integer codes
         if isinstance(lay, CodedTable):
@@ -304,3 +294,31 @@ class Run(PoolIncidence):
         """The layout as a DataFrame (pool, sample), one row per membership."""
         owner = np.repeat(np.arange(self.n_pools), self.pool_size)
         return pd.DataFrame({"pool": self.pool_ids[owner], "sample": self.sample_ids[self.pool_members]})
+
+
+def read_run(layout, readouts=None, samples=None, *, prevalence: float = PREVALENCE) -> Run:
+    """Read a run from its files: the layout, the readouts and the optional samples file.
+
+    Parameters
+    ----------
+    layout : str or path-like
+        ``pool,sample`` memberships, one row each.
+    readouts : str or path-like, optional
+        ``pool,result[,ct]`` readouts; several rows of one pool are replicates. None (or a file
+        with a header only) means nothing is read yet.
+    samples : str or path-like, optional
+        ``sample[,prior,plate,well,...]``; specimens of the layout missing here take
+        ``prevalence``.
+    prevalence : float, keyword-only
+        Prior probability of specimens without a prior, strictly between 0 and 1.
+
+    Returns
+    -------
+    Run
+
+    Raises
+    ------
+    InputError
+        A bad file (naming file, line and column) or a bad ``prevalence``.
+    """
+    return Run.read(layout, readouts, samples, prevalence=prevalence)

@@ -8,7 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .base import Design, build_design, check_count, check_max_pool_size, pool_labels
+from ..validation import check_count
+from .base import Design, build_design, check_max_pool_size, pool_labels
 from .specimens import specimens
 
 
@@ -22,7 +23,7 @@ def dorfman_blocks(n: int, k: int):
 def dorfman_design(samples, pool_size: int, max_pool_size: int | None = None) -> Design:
     """Pools of ``pool_size`` consecutive specimens in the given order."""
     spec = specimens(samples)
-    k = check_count(pool_size, "--pool-size")
+    k = check_count(pool_size, "pool_size")
     limit = check_max_pool_size(max_pool_size)
     n = len(spec)
     ptr, members = dorfman_blocks(n, k)

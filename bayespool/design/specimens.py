@@ -73,7 +73,7 @@ def specimens(arg) -> Specimens:
         return arg
     if isinstance(arg, (int, np.integer)) and not isinstance(arg, bool):
         if arg < 1:
-            raise InputError(f"--samples must be at least 1, got {arg}")
+            raise InputError(f"samples must be at least 1, got {arg}", parameters=("samples",))
         return Specimens(numbered(int(arg)))
     if isinstance(arg, (list, tuple, np.ndarray, pd.Index)):
         ids = np.asarray([str(a) for a in arg], dtype=object)

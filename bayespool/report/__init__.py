@@ -81,7 +81,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     return page(title or DEFAULT_TITLE, meta, toc, sections, footer)
 
 
-def write_report(path, run=None, assay=None, posterior=None, plan=None, calibration=None,
+def write_report(path, *, run=None, assay=None, posterior=None, plan=None, calibration=None,
                  title=None, **options) -> Path:
     """Write the report to ``path`` atomically (see :func:`build_report` for ``options``)."""
     from ..io import check_output_path, write_text

@@ -13,6 +13,7 @@ import numpy as np
 
 from ...defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
 from ...errors import InputError
+from ...validation import check_count
 from ..posterior import Posterior
 from .joint import ambiguity_groups, count_summary
 from .sampler import CHAINS, GibbsResult, GibbsSampler
@@ -21,19 +22,25 @@ OPTIONS = ("chains", "warmup", "min_sweeps", "max_sweeps", "rhat_target", "ess_t
            "prevalence_prior", "max_draws", "memory_budget", "progress", "moves")
 
 
+def option_name(name: str) -> str:
+    """How errors name a sampler option: as an entry of ``decode``'s ``gibbs_options``."""
+    return f'gibbs_options["{name}"]'
+
+
 def check_options(options: dict | None) -> dict:
     """Validated sampler options (names as in :meth:`GibbsSampler.sample`)."""
     options = dict(options or {})
     unknown = sorted(set(options) - set(OPTIONS))
     if unknown:
-        raise InputError(f"unknown Gibbs option(s) {', '.join(unknown)}")
+        raise InputError(f"unknown Gibbs option(s) {', '.join(unknown)} in gibbs_options "
+                         f"(choose from {', '.join(OPTIONS)})", parameters=("gibbs_options",))
     for name, least in (("chains", 1), ("warmup", 0), ("min_sweeps", 8), ("max_sweeps", 8)):
-        if options.get(name) is not None and int(options[name]) < least:
-            flag = "--" + name.replace("_", "-")
-            raise InputError(f"{flag} must be at least {least}, got {options[name]}")
+        if options.get(name) is not None:
+            options[name] = check_count(options[name], option_name(name), least)
     if options.get("prevalence_prior") is not None:
         from .prevalence import parse_beta_prior
-        options["prevalence_prior"] = parse_beta_prior(options["prevalence_prior"])
+        options["prevalence_prior"] = parse_beta_prior(options["prevalence_prior"],
+                                                       option_name("prevalence_prior"))
     return {k: v for k, v in options.items() if v is not None}
 
 
@@ -103,7 +110,8 @@ def sample_components(run, lik_ptr, loglik, comps, selected, seed=None, negative
     specimens = np.concatenate([comps.samples_of(int(c)) for c in selected])
     opts = dict(options or {})
     if opts.get("prevalence_prior") is not None:
-        raise InputError("an unknown prevalence links every specimen; use --method gibbs")
+        raise InputError("an unknown prevalence links every specimen; use method gibbs",
+                         parameters=("method",))
     return run_sampler(run, lik_ptr, loglik, specimens, seed, negative_below, positive_above,
                        opts)
 

@@ -13,7 +13,8 @@ from __future__ import annotations
 import numpy as np
 
 from ...design.array import PLATE_COLS, PLATE_ROWS, array_pools, grid_positions
-from ...design.base import check_count, check_max_pool_size
+from ...design.base import check_max_pool_size
+from ...validation import check_count
 from ...errors import InputError
 from ..protocol import Outcome, Protocol, Tester, singles
 
@@ -25,12 +26,13 @@ class ArrayTesting(Protocol):
 
     def __init__(self, rows: int | None = None, cols: int | None = None,
                  max_pool_size: int | None = None):
-        self.rows = check_count(PLATE_ROWS if rows is None else rows, "--rows")
-        self.cols = check_count(PLATE_COLS if cols is None else cols, "--cols")
+        self.rows = check_count(PLATE_ROWS if rows is None else rows, "rows")
+        self.cols = check_count(PLATE_COLS if cols is None else cols, "cols")
         limit = check_max_pool_size(max_pool_size)
         if limit is not None and max(self.rows, self.cols) > limit:
             raise InputError(f"a {self.rows} x {self.cols} grid makes pools of "
-                             f"{max(self.rows, self.cols)} specimens, above --max-pool-size {limit}")
+                             f"{max(self.rows, self.cols)} specimens, above max_pool_size {limit}",
+                             parameters=("max_pool_size",))
 
     def parameters(self):
         return {"rows": self.rows, "cols": self.cols}

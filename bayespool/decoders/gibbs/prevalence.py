@@ -25,19 +25,17 @@ def draw_prevalence(rng, a, b, positives, n):
     return pi, np.log(pi) - np.log1p(-pi)
 
 
-def parse_beta_prior(value) -> tuple[float, float]:
+def parse_beta_prior(value, name: str = "prevalence_prior") -> tuple[float, float]:
     """``(a, b)`` or the text ``"A,B"``: both strictly positive and finite."""
-    if isinstance(value, str):
-        parts = value.replace(":", ",").split(",")
-        try:
-            a, b = (float(p) for p in parts)
-        except ValueError:
-            raise InputError(f"--prevalence-prior expects two numbers A,B (a Beta(A, B) prior), "
-                             f"got {value!r}") from None
-    else:
-        a, b = (float(v) for v in value)
+    parts = value.replace(":", ",").split(",") if isinstance(value, str) else value
+    try:
+        a, b = (float(p) for p in parts)
+    except (TypeError, ValueError):
+        raise InputError(f"{name} expects two numbers A,B (a Beta(A, B) prior), got {value!r}",
+                         parameters=(name,)) from None
     if not (a > 0 and b > 0 and math.isfinite(a) and math.isfinite(b)):
-        raise InputError(f"the prevalence prior Beta(A, B) needs A > 0 and B > 0, got {a:g}, {b:g}")
+        raise InputError(f"{name}: the prevalence prior Beta(A, B) needs A > 0 and B > 0, got "
+                         f"{a:g}, {b:g}", parameters=(name,))
     return a, b
 
 

@@ -2,7 +2,7 @@
 
 A protocol sees the truth only through ``Tester``, which draws readouts from the assay model for the
 pools it is asked to read and counts tests, rounds and draws per specimen. Each protocol is a small
-class in its own module of :mod:`bayespool.simulate.protocols`.
+class in its own module of :mod:`bayespool.simulation.protocols`.
 """
 from __future__ import annotations
 

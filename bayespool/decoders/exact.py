@@ -3,7 +3,7 @@
 States are visited in Gray-code order, so each step flips one specimen and updates only the positive
 counts of that specimen's pools: a state costs the flipped specimen's number of pools plus the
 accumulation. The walk stores every state's log weight (shared with the exact sampler in
-:mod:`bayespool.decode.exact_sample`); pools whose likelihood is zero (Se = 1 or Sp = 1) are counted
+:mod:`bayespool.decoders.exact_sample`); pools whose likelihood is zero (Se = 1 or Sp = 1) are counted
 rather than summed, so hard constraints are exact and never NaN. Marginals are then accumulated
 against the largest weight.
 Besides the marginals it returns each component's log evidence and the distribution of its number of
@@ -135,7 +135,7 @@ def check_component_sizes(comps: Components, selected: np.ndarray, limit: int = 
         big = int(np.argmax(sizes))
         raise InputError(f"a connected group of {int(sizes[big])} samples linked through shared pools "
                          f"is above the exact decoder's limit of {limit} samples (2^{limit} states); "
-                         "use --method bp or gibbs, or auto")
+                         "use method bp or gibbs, or auto", parameters=("method",))
 
 
 def decode_exact(run, lik_ptr, loglik, comps: Components, selected=None, limit: int = EXACT_LIMIT):

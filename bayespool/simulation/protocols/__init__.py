@@ -14,10 +14,10 @@ from importlib import import_module
 from ...errors import InputError
 
 PROTOCOLS = {
-    "individual": "bayespool.simulate.protocols.individual:IndividualTesting",
-    "dorfman": "bayespool.simulate.protocols.dorfman:DorfmanTesting",
-    "array": "bayespool.simulate.protocols.array:ArrayTesting",
-    "bayes": "bayespool.simulate.protocols.bayes:BayesianLoop",
+    "individual": "bayespool.simulation.protocols.individual:IndividualTesting",
+    "dorfman": "bayespool.simulation.protocols.dorfman:DorfmanTesting",
+    "array": "bayespool.simulation.protocols.array:ArrayTesting",
+    "bayes": "bayespool.simulation.protocols.bayes:BayesianLoop",
 }
 
 

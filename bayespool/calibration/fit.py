@@ -15,6 +15,8 @@ from scipy.special import xlogy
 
 from ..assay import Assay
 from ..errors import InputError
+from ..validation import (check_choice, check_count, check_number, check_seed,
+                          parameter_error)
 from .binomial import CellLikelihood
 from .curve import CurveModel, covariance
 from .families import FAMILIES, Family, check_fixed, family
@@ -26,6 +28,16 @@ from .space import Space
 from .validation import Cells, ValidationData
 
 INTERVALS = ("profile", "wald")
+
+
+def check_options(model, level, intervals) -> float:
+    """The options both fits share: the family (or ``best``), the level and the interval method."""
+    check_choice(model, "model", FAMILIES + ("best",))
+    check_choice(intervals, "intervals", INTERVALS)
+    level = check_number(level, "level")
+    if not 0.5 <= level < 1.0:
+        raise parameter_error(f"level must be in [0.5, 1), got {level!r}", "level")
+    return level
 INTERVAL_NAMES = {"profile": "profile likelihood", "wald": "Wald (transformed scale)",
                   "exact": "Clopper-Pearson", "fixed": "fixed"}
 
@@ -206,7 +218,8 @@ def specificity_estimate(data: ValidationData, fixed, level: float):
     if n0 == 0:
         raise InputError("the validation data have no readouts of pools without a positive member "
                          "(positives = 0), so the specificity cannot be estimated; add such rows "
-                         "or give it with --fix specificity=VALUE", data.source)
+                         'or give it as fixed["specificity"]', data.source,
+                         parameters=('fixed["specificity"]',))
     sp = neg0 / n0
     lo, hi = clopper_pearson(neg0, n0, level)
     ll = float(xlogy(neg0, sp) + xlogy(n0 - neg0, 1.0 - sp))
@@ -251,12 +264,9 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
     bootstrap p-value to the goodness-of-fit test. ``compare`` fits the other families too and
     lists their AIC (always done for ``best``).
     """
-    if not 0.5 <= float(level) < 1.0:
-        raise InputError(f"the interval level must be in [0.5, 1), got {level!r}")
-    if model not in FAMILIES + ("best",):
-        raise InputError(f"unknown model {model!r} (choose one of {', '.join(FAMILIES)} or best)")
-    if intervals not in INTERVALS:
-        raise InputError(f"unknown interval method {intervals!r} (choose profile or wald)")
+    level = check_options(model, level, intervals)
+    gof_draws = check_count(gof_draws, "gof_draws", 0)
+    rng = check_seed(seed)
     fixed = dict(fixed or {})
     sp_fixed = fixed.pop("specificity", None)
     warnings = list(data.notes)
@@ -295,7 +305,8 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
                                   starts=[exc.u] + fit.starts)
     else:
         raise InputError("the sensitivity fit keeps finding better optima while profiling; the "
-                         "likelihood is too irregular for intervals (try --intervals wald)")
+                         "likelihood is too irregular for intervals (try intervals wald)",
+                         parameters=("intervals",))
     warnings += edge_warnings(fit.space.free_params, fit.optimum.at_lower, fit.optimum.at_upper,
                               fit.family.name) + notes
     if sp_free and sp == 1.0:
@@ -326,7 +337,6 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
     n_params = int(sp_free) + fit.space.n_free
     goodness = goodness_of_fit(cells_all, fitted, n_params)
     if gof_draws and goodness["df"] > 0:
-        rng = np.random.default_rng(seed)
         zero = cells_all.d == 0
 
         def refit(x):

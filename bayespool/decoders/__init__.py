@@ -5,7 +5,7 @@ each with one decoder: ``exact`` enumerates a component's states, ``bp`` runs lo
 propagation, ``auto`` chooses per component by cost (:func:`choose_decoders`). Decoders are entries
 of :data:`PART_DECODERS` with one signature, so another decoder plugs in by registering itself; a
 component on which BP did not converge is handed to the decoder :func:`fallback_decoder` names.
-``gibbs`` samples the whole run jointly (bayespool.decode.gibbs), as does any method given an
+``gibbs`` samples the whole run jointly (bayespool.decoders.gibbs), as does any method given an
 unknown prevalence (which links every sample).
 """
 from __future__ import annotations
@@ -19,12 +19,12 @@ import numpy as np
 from ..defaults import METHODS
 from ..errors import InputError
 from ..run import Run
-from .bp import DAMPING, MAX_SWEEPS, TOLERANCE, decode_bp
+from .bp import DAMPING, MAX_SWEEPS, TOLERANCE, check_bp_options, decode_bp
 from .counts import count_distribution
 from .exact import EXACT_LIMIT, check_component_sizes, decode_exact, impossible
 from .graph import Components, components
-from .posterior import (DEFAULT_NEGATIVE_BELOW, DEFAULT_POSITIVE_ABOVE, Posterior,
-                        check_thresholds)
+from ..validation import check_choice, check_count, check_seed, check_thresholds
+from .posterior import DEFAULT_NEGATIVE_BELOW, DEFAULT_POSITIVE_ABOVE, Posterior
 
 __all__ = ["decode", "Posterior", "METHODS", "EXACT_LIMIT", "EXACT_BUDGET", "components",
            "Components", "choose_decoders", "fallback_decoder", "PART_DECODERS", "DecodedPart"]
@@ -112,7 +112,7 @@ def fallback_decoder(method: str, part: DecodedPart) -> Callable | None:
     """The part decoder that re-decodes the components on which ``part`` did not converge, or None.
 
     Only ``auto`` falls back (an explicit ``--method bp`` keeps BP's answer, with a warning). BP's
-    fallback is the Gibbs sampler, through ``bayespool.decode.gibbs.fallback`` when that module is
+    fallback is the Gibbs sampler, through ``bayespool.decoders.gibbs.fallback`` when that module is
     part of the package; without it there is none and decode warns loudly.
     """
     if method != "auto" or part.method != "bp" or not len(part.unconverged):
@@ -216,7 +216,7 @@ def choose_decoders(run: Run, comps: Components, method: str, exact_limit: int =
 
 
 # ---- the entry point
-def decode(run: Run, assay, method: str = "auto",
+def decode(run: Run, assay, *, method: str = "auto",
            negative_below: float = DEFAULT_NEGATIVE_BELOW,
            positive_above: float = DEFAULT_POSITIVE_ABOVE,
            seed=None, exact_limit: int = EXACT_LIMIT, damping: float = DAMPING,
@@ -225,14 +225,15 @@ def decode(run: Run, assay, method: str = "auto",
     """Posterior P(x_i = 1 | readouts) for every specimen of ``run`` under ``assay``.
 
     ``method`` is one of :data:`METHODS`. ``damping``, ``tolerance`` and ``max_sweeps`` steer belief
-    propagation (see :mod:`bayespool.decode.bp`); ``progress`` shows sweeps on stderr (default: when
+    propagation (see :mod:`bayespool.decoders.bp`); ``progress`` shows sweeps on stderr (default: when
     it is a terminal and the run is large). ``gibbs_options`` go to the Gibbs sampler (chains,
-    max_sweeps, prevalence_prior, ...; see :meth:`bayespool.decode.gibbs.GibbsSampler.sample`).
+    max_sweeps, prevalence_prior, ...; see :meth:`bayespool.decoders.gibbs.GibbsSampler.sample`).
     """
-    if method not in METHODS or (method not in ("auto", "gibbs") and method not in PART_DECODERS):
-        raise InputError(f"unknown method {method!r} (choose one of {', '.join(METHODS)})")
+    method = check_choice(method, "method", METHODS)
     lo, hi = check_thresholds(negative_below, positive_above)
-    _check_bp_options(damping, tolerance, max_sweeps)
+    damping, tolerance, max_sweeps = check_bp_options(damping, tolerance, max_sweeps)
+    exact_limit = check_count(exact_limit, "exact_limit")
+    check_seed(seed)  # a bad seed fails before any work
     if run.n_samples == 0:
         raise InputError("there are no samples to decode: the layout is empty and no samples file "
                          "lists any", run.sources.get("layout"))
@@ -240,8 +241,9 @@ def decode(run: Run, assay, method: str = "auto",
     _check_pools_possible(run, lik_ptr, loglik)
     shared = (gibbs_options or {}).get("prevalence_prior") is not None
     if shared and method not in ("auto", "gibbs"):
-        raise InputError("an unknown prevalence (--prevalence-prior) links every sample; use "
-                         "--method gibbs or auto")
+        raise InputError('an unknown prevalence (gibbs_options["prevalence_prior"]) links every '
+                         'sample; use method gibbs or auto',
+                         parameters=('gibbs_options["prevalence_prior"]', "method"))
     if method == "gibbs" or shared:
         from .gibbs import decode_gibbs
         post = decode_gibbs(run, lik_ptr, loglik, lo, hi, seed, gibbs_options,
@@ -269,15 +271,6 @@ def decode(run: Run, assay, method: str = "auto",
             part.warnings.append(_not_converged(part, comps, f"re-decoded by {redo.method}"))
             parts.append(redo)
     return _assemble(run, comps, choice, parts, lo, hi)
-
-
-def _check_bp_options(damping, tolerance, max_sweeps):
-    if not (0.0 <= float(damping) < 1.0):
-        raise InputError(f"--damping must be at least 0 and below 1, got {damping!r}")
-    if not (float(tolerance) > 0.0):
-        raise InputError(f"--tolerance must be a positive number, got {tolerance!r}")
-    if int(max_sweeps) < 1:
-        raise InputError(f"--max-sweeps must be at least 1, got {max_sweeps!r}")
 
 
 def _not_converged(part: DecodedPart, comps: Components, remedy: str | None) -> str:

@@ -15,7 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ...design.base import check_count, check_max_pool_size
+from ...design.base import check_max_pool_size
+from ...validation import check_count
 from ...design.dorfman import dorfman_blocks
 from ...errors import InputError
 from ..protocol import Outcome, Protocol, Tester, singles
@@ -38,11 +39,12 @@ class DorfmanTesting(Protocol):
 
     def __init__(self, pool_size: int | None = None, max_pool_size: int | None = None):
         if pool_size is None:
-            raise InputError("the dorfman scheme needs --pool-size K")
-        self.pool_size = check_count(pool_size, "--pool-size")
+            raise InputError("the dorfman scheme needs pool_size", parameters=("pool_size",))
+        self.pool_size = check_count(pool_size, "pool_size")
         limit = check_max_pool_size(max_pool_size)
         if limit is not None and self.pool_size > limit:
-            raise InputError(f"--pool-size {self.pool_size} exceeds --max-pool-size {limit}")
+            raise InputError(f"pool_size {self.pool_size} exceeds max_pool_size {limit}",
+                             parameters=("pool_size", "max_pool_size"))
 
     def parameters(self):
         return {"pool_size": self.pool_size}

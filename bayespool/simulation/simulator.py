@@ -3,7 +3,7 @@
 Statuses come from one random stream and readouts from another (both spawned from ``seed``), so a
 protocol's batch path and its per-run path see the same cohorts. Protocols with a ``run_batch`` method
 (vectorised over runs) use it unless ``batch=False``; the others are played one cohort at a time
-through a :class:`~bayespool.simulate.protocol.Tester`.
+through a :class:`~bayespool.simulation.protocol.Tester`.
 """
 from __future__ import annotations
 
@@ -14,9 +14,8 @@ import numpy as np
 import pandas as pd
 
 from ..assay import DEFAULT_ASSAY, Assay
-from ..design.base import check_count
 from ..errors import InputError
-from ..run import check_prevalence
+from ..validation import check_count, check_open_probability, seed_sequence
 from .characteristics import ORDER, OperatingCharacteristics, summarise_runs
 from ..design.specimens import specimens
 from .cohort import Cohort, blocks, make_cohort
@@ -62,19 +61,19 @@ def _progress_bar(progress, total: int):
     return tqdm(total=total, unit="run", file=sys.stderr, leave=False), True
 
 
-def simulate(scheme, samples, prevalence: float | None = None, assay: Assay | None = None,
+def simulate(scheme, samples, *, prevalence: float | None = None, assay: Assay | None = None,
              runs: int = 1000, seed=None, progress=False, batch: bool = True,
              **options) -> Simulation:
     """Simulate ``runs`` cohorts of ``samples`` (N, a samples file or Specimens) under a protocol.
 
-    ``scheme`` is a registered name (see :data:`bayespool.simulate.protocols.PROTOCOLS`) or a
+    ``scheme`` is a registered name (see :data:`bayespool.simulation.protocols.PROTOCOLS`) or a
     :class:`Protocol`; ``options`` go to its constructor (``pool_size``, ``rows``, ``cols``, ...).
     """
     protocol = scheme if isinstance(scheme, Protocol) else make_protocol(scheme, **options)
     cohort = samples if isinstance(samples, Cohort) else make_cohort(samples, prevalence)
     assay = DEFAULT_ASSAY if assay is None else assay
-    runs = check_count(runs, "--runs")
-    seq = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
+    runs = check_count(runs, "runs")
+    seq = seed_sequence(seed)
     cohort_rng, test_rng = (np.random.default_rng(s) for s in seq.spawn(2))
     bar, own_bar = _progress_bar(progress, runs)
     frames = []
@@ -140,15 +139,15 @@ class Sweep:
         return [s.to_dict() for s in self.results]
 
 
-def sweep(scheme: str, samples, prevalences=None, pool_sizes=None, assay: Assay | None = None,
+def sweep(scheme: str, samples, *, prevalences=None, pool_sizes=None, assay: Assay | None = None,
           runs: int = 1000, seed=None, progress=False, **options) -> Sweep:
     """Simulate every combination of ``prevalences`` and ``pool_sizes`` (either may be None).
 
     Each point gets its own random streams spawned from ``seed`` (reproducible point by point).
     """
-    prevs = [None] if prevalences is None else [check_prevalence(p) for p in prevalences]
+    prevs = [None] if prevalences is None else [check_open_probability(p, "prevalence") for p in prevalences]
     sizes = [options.pop("pool_size", None)] if pool_sizes is None else \
-        [check_count(k, "--pool-size") for k in pool_sizes]
+        [check_count(k, "pool_size") for k in pool_sizes]
     if pool_sizes is not None:
         accepted = accepted_options(scheme)
         if accepted is not None and "pool_size" not in accepted:
@@ -158,8 +157,8 @@ def sweep(scheme: str, samples, prevalences=None, pool_sizes=None, assay: Assay 
         raise InputError("every specimen has a prior in the samples file, so a sweep over "
                          "prevalences would change nothing")
     points = list(itertools.product(prevs, sizes))
-    runs = check_count(runs, "--runs")
-    seeds = np.random.SeedSequence(seed).spawn(len(points))
+    runs = check_count(runs, "runs")
+    seeds = seed_sequence(seed).spawn(len(points))
     bar, own_bar = _progress_bar(progress, runs * len(points))
     results = []
     try:

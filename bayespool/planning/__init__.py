@@ -16,7 +16,7 @@ DEFAULT_TESTS = 96               # one plate
 DEFAULT_MAX_POOL_SIZE = 16       # within what pooling validations commonly cover (common practice)
 DEFAULT_MIN_INFORMATION = 0.001  # bits: a test expected to tell less is not worth a well
 DEFAULT_DRAWS = 1000             # joint posterior draws that information is estimated over
-DEFAULT_MAX_LINKED = 22          # = bayespool.decode.exact.EXACT_LIMIT (a test checks it)
+DEFAULT_MAX_LINKED = 22          # = bayespool.decoders.exact.EXACT_LIMIT (a test checks it)
 
 _EXPORTS = {"plan": ".planner", "Plan": ".result", "posterior_draws": ".draws",
             "joint_information": ".information", "pool_information": ".information"}
@@ -28,4 +28,4 @@ __all__ = sorted(_EXPORTS) + ["DEFAULT_TESTS", "DEFAULT_MAX_POOL_SIZE", "DEFAULT
 def __getattr__(name):
     if name in _EXPORTS:
         return getattr(import_module(_EXPORTS[name], __name__), name)
-    raise AttributeError(f"module 'bayespool.plan' has no attribute {name!r}")
+    raise AttributeError(f"module 'bayespool.planning' has no attribute {name!r}")

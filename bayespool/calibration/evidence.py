@@ -10,7 +10,7 @@ log P(y) = sum_c log Z_c. Two kinds of component:
   P(d) is the Poisson-binomial distribution of the b_i / s_i, built by the usual recursion in
   O(k^2) (Dorfman 1943 pools of any size, batched over pools of equal size);
 - anything else (arrays, overlapping designs): the exact decoder's Gray-code enumeration
-  (bayespool.decode.exact), within its limit of EXACT_LIMIT specimens per component.
+  (bayespool.decoders.exact), within its limit of EXACT_LIMIT specimens per component.
 """
 from __future__ import annotations
 
@@ -19,8 +19,8 @@ import dataclasses
 import numpy as np
 from numba import njit
 
-from ..decode.exact import EXACT_LIMIT, decode_exact
-from ..decode.graph import components
+from ..decoders.exact import EXACT_LIMIT, decode_exact
+from ..decoders.graph import components
 from ..errors import ImpossibleEvidenceError, InputError
 from ..run import Run
 

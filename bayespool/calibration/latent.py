@@ -4,7 +4,7 @@ Past runs hold pools and the follow-up tests of their members (individual tests 
 read by the same imperfect assay). With statuses x_i ~ Bernoulli(prevalence) independently, the
 likelihood of the readouts is the evidence log P(y | theta) = sum_c log Z_c(theta) over connected
 components (evidence.py: pools with their follow-up in closed form, the rest by the exact
-decoder's enumeration, bayespool.decode.exact). It is maximised directly
+decoder's enumeration, bayespool.decoders.exact). It is maximised directly
 over (prevalence, specificity, sensitivity parameters) on the unconstrained scale with scipy's
 SLSQP: the same estimate as EM with the exact posterior as E-step (Dempster, Laird & Rubin 1977)
 reaches at its fixed point, without EM's slow final convergence, and the curvature of the same
@@ -25,8 +25,8 @@ from ..run import Run
 from .evidence import Evidence
 from .curve import CurveModel, covariance
 from .families import FAMILIES, Family, Param, check_fixed, family, probability
-from .fit import (INTERVAL_NAMES, INTERVALS, LocalOptimum, edge_warnings, fit_details,
-                  natural_interval)
+from .fit import (INTERVAL_NAMES, LocalOptimum, check_options, edge_warnings,
+                  fit_details, natural_interval)
 from .identify import identifiability
 from .intervals import clopper_pearson
 from .mle import Profiler, hessian, maximize, standard_errors, wald_interval
@@ -115,16 +115,11 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
     be used. A pool with the individual follow-up of its members may be of any size; other
     groups of specimens linked through shared pools must stay within the exact decoder's limit.
     """
-    if intervals not in INTERVALS:
-        raise InputError(f"unknown interval method {intervals!r} (choose profile or wald)")
-    if not 0.5 <= float(level) < 1.0:
-        raise InputError(f"the interval level must be in [0.5, 1), got {level!r}")
+    level = check_options(model, level, intervals)
     read = (run.n_positive + run.n_negative) > 0
     if not read.any():
         raise InputError("the readouts hold no readout of any pool: nothing to fit",
                          run.sources.get("readouts"))
-    if model not in FAMILIES + ("best",):
-        raise InputError(f"unknown model {model!r} (choose one of {', '.join(FAMILIES)} or best)")
     fixed = dict(fixed or {})
     candidates = FAMILIES if model == "best" else (model,)
     check_fixed(fixed, [p for m in candidates for p in _params(_family_for_run(m, run, read))],
@@ -151,7 +146,8 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
             opt = maximize(objective, [exc.u, opt.u], space.bounds, jac=False)
     else:
         raise InputError("the fit keeps finding better optima while profiling; the likelihood "
-                         "is too irregular for intervals (try --intervals wald)")
+                         "is too irregular for intervals (try intervals wald)",
+                         parameters=("intervals",))
     values = space.natural(opt.u)
     for p, lo, hi in zip(space.free_params, opt.at_lower, opt.at_upper):
         if p.scale == "logit" and (lo or hi):

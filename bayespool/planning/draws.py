@@ -12,9 +12,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..decode.exact import EXACT_LIMIT
-from ..decode.exact_sample import sample_exact
-from ..decode.graph import components
+from ..decoders.exact import EXACT_LIMIT
+from ..decoders.exact_sample import sample_exact
+from ..decoders.graph import components
 from . import DEFAULT_DRAWS
 
 SAMPLE_LIMIT = EXACT_LIMIT  # largest component drawn exactly

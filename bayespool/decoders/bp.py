@@ -37,6 +37,7 @@ from numba import njit
 from ..defaults import BP_DAMPING as DAMPING  # new = damping * old + (1 - damping) * computed
 from ..defaults import BP_MAX_SWEEPS as MAX_SWEEPS
 from ..defaults import BP_TOLERANCE as TOLERANCE  # converged: no message moved this much in a sweep
+from ..validation import check_count, check_fraction, check_positive
 from .exact import impossible
 
 _INF = np.inf
@@ -420,6 +421,12 @@ def _members_of(run, comps, selected):
     return pools.astype(np.int64), samples
 
 
+def check_bp_options(damping, tolerance, max_sweeps) -> tuple[float, float, int]:
+    """Belief propagation's options, checked in one place for ``decode`` and ``decode_bp``."""
+    return (check_fraction(damping, "damping"), check_positive(tolerance, "tolerance"),
+            check_count(max_sweeps, "max_sweeps"))
+
+
 def decode_bp(run, lik_ptr, loglik, comps, selected=None, damping: float = DAMPING,
               tolerance: float = TOLERANCE, max_sweeps: int = MAX_SWEEPS,
               progress: bool | None = None) -> BPResult:
@@ -428,12 +435,7 @@ def decode_bp(run, lik_ptr, loglik, comps, selected=None, damping: float = DAMPI
     Raises ImpossibleEvidenceError when hard constraints make the readouts impossible (a pool no
     state explains, or a specimen forced both positive and negative).
     """
-    if not (0.0 <= damping < 1.0):
-        raise ValueError(f"damping must be in [0, 1), got {damping!r}")
-    if not (tolerance > 0.0):
-        raise ValueError(f"tolerance must be positive, got {tolerance!r}")
-    if max_sweeps < 1:
-        raise ValueError(f"max_sweeps must be at least 1, got {max_sweeps!r}")
+    damping, tolerance, max_sweeps = check_bp_options(damping, tolerance, max_sweeps)
     if selected is None:
         selected = np.arange(comps.n_components)
     selected = np.asarray(selected, dtype=np.int64)

@@ -2,14 +2,15 @@
 from __future__ import annotations
 
 import dataclasses
-import math
 
 import numpy as np
 
-from ..decode.graph import components
-from ..defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
-from ..decode.posterior import call_codes, check_thresholds
+from ..decoders.graph import components
+from ..defaults import METHODS, NEGATIVE_BELOW, POSITIVE_ABOVE
+from ..decoders.posterior import call_codes
 from ..errors import InputError
+from ..validation import (check_choice, check_count, check_nonnegative, check_seed,
+                          check_thresholds)
 from .candidates import generate
 from . import (DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION,
                DEFAULT_TESTS)
@@ -21,23 +22,17 @@ from .result import Plan
 
 UNLIMITED = np.iinfo(np.int64).max // 4
 
-def _whole(value, name: str, low: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < low:
-        raise InputError(f"{name} must be a whole number >= {low}, got {value!r}")
-    return int(value)
-
-
 def _draws_left(run, max_draws) -> np.ndarray:
     """How many more times each specimen may be drawn: the option, and a samples-file column."""
     if max_draws is None:
         left = np.full(run.n_samples, UNLIMITED, dtype=np.int64)
     elif np.ndim(max_draws) == 0:
-        left = np.full(run.n_samples, _whole(max_draws, "--max-draws", 0), dtype=np.int64)
+        left = np.full(run.n_samples, check_count(max_draws, "max_draws", 0), dtype=np.int64)
     else:
         left = np.array(max_draws, dtype=np.int64)
         if left.shape != (run.n_samples,) or (left < 0).any():
             raise InputError(f"max_draws must be one whole number >= 0 or one per specimen "
-                             f"({run.n_samples})")
+                             f"({run.n_samples})", parameters=("max_draws",))
     sm = run.samples
     if sm is not None and "draws_left" in sm.columns:
         raw = sm["draws_left"].astype(str).str.strip()
@@ -58,7 +53,7 @@ def untested(run) -> np.ndarray:
     return np.bincount(run.pool_members[read], minlength=run.n_samples) == 0
 
 
-def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
+def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
          max_pool_size: int = DEFAULT_MAX_POOL_SIZE, max_draws=None,
          negative_below: float | None = None, positive_above: float | None = None,
          n_draws: int = DEFAULT_DRAWS, seed=None, min_information: float = DEFAULT_MIN_INFORMATION,
@@ -81,16 +76,16 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
     fewer than that fraction of the first pick. ``draws``: joint posterior draws (draws x specimens)
     to use instead of making them. ``seed``: reproducible draws.
     """
-    tests = _whole(tests, "--tests", 1)
-    max_pool_size = _whole(max_pool_size, "--max-pool-size", 1)
-    max_linked = _whole(max_linked, "max_linked", 1)
-    n_draws = _whole(n_draws, "--posterior-draws", 10)
-    for value, name in ((min_information, "--min-information"),
-                        (relative_information, "relative_information")):
-        if not (isinstance(value, (int, float)) and math.isfinite(value) and value >= 0):
-            raise InputError(f"{name} must be a number >= 0, got {value!r}")
+    tests = check_count(tests, "tests", 1)
+    max_pool_size = check_count(max_pool_size, "max_pool_size", 1)
+    max_linked = check_count(max_linked, "max_linked", 1)
+    n_draws = check_count(n_draws, "n_draws", 10)
+    min_information = check_nonnegative(min_information, "min_information")
+    relative_information = check_nonnegative(relative_information, "relative_information")
+    method = check_choice(method, "method", METHODS)
+    check_seed(seed)  # a bad seed fails before any work
     if posterior is None:
-        from ..decode import decode
+        from ..decoders import decode
         lo, hi = check_thresholds(NEGATIVE_BELOW if negative_below is None else negative_below,
                                   POSITIVE_ABOVE if positive_above is None else positive_above)
         posterior = decode(run, assay, method=method, negative_below=lo, positive_above=hi,
@@ -115,11 +110,12 @@ def plan(run, assay, posterior=None, tests: int = DEFAULT_TESTS,
     if run.n_samples and not allowed[1:max_pool_size + 1].any():
         raise InputError(f"the assay covers no pool size up to {max_pool_size}",
                          run.sources.get("assay"))
-    rng = np.random.default_rng(seed)
+    rng = check_seed(seed)
     if draws is None:
         draws = posterior_draws(run, assay, posterior, n_draws, rng, notes)
     elif draws.ndim != 2 or draws.shape[1] != run.n_samples:
-        raise InputError(f"draws must be an array of draws x {run.n_samples} specimens")
+        raise InputError(f"draws must be an array of draws x {run.n_samples} specimens",
+                         parameters=("draws",))
     xt = np.ascontiguousarray(np.asarray(draws, dtype=np.uint8).T)
     w = np.full(xt.shape[1], 1.0 / xt.shape[1])
     comps = components(run)

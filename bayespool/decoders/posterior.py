@@ -5,29 +5,15 @@ A :class:`Posterior` is data: arrays plus a few summaries. ``to_frame()`` gives 
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
-from ..errors import InputError
 
 from ..defaults import NEGATIVE_BELOW as DEFAULT_NEGATIVE_BELOW
 from ..defaults import POSITIVE_ABOVE as DEFAULT_POSITIVE_ABOVE
 CALLS = ("negative", "inconclusive", "positive")
-
-
-def check_thresholds(negative_below: float, positive_above: float) -> tuple[float, float]:
-    """Thresholds must satisfy 0 < negative_below <= positive_above < 1."""
-    lo, hi = float(negative_below), float(positive_above)
-    if not (0.0 < lo < 1.0) or math.isnan(lo):
-        raise InputError(f"--negative-below must be strictly between 0 and 1, got {negative_below!r}")
-    if not (0.0 < hi < 1.0) or math.isnan(hi):
-        raise InputError(f"--positive-above must be strictly between 0 and 1, got {positive_above!r}")
-    if lo > hi:
-        raise InputError(f"--negative-below ({lo:g}) must not exceed --positive-above ({hi:g})")
-    return lo, hi
 
 
 def call_codes(probability: np.ndarray, negative_below: float, positive_above: float) -> np.ndarray:

@@ -13,7 +13,7 @@ import numpy as np
 
 from ..design.specimens import Specimens, specimens
 from ..errors import InputError
-from ..run import check_prevalence
+from ..validation import check_open_probability
 
 
 @dataclass
@@ -46,9 +46,9 @@ def make_cohort(samples, prevalence: float | None = None) -> Cohort:
     missing = spec.prior is None or bool(np.isnan(spec.prior).any())
     if missing:
         if prevalence is None:
-            raise InputError("give --prevalence (or a samples file with a prior for every "
-                             "specimen)")
-        prevalence = check_prevalence(prevalence)
+            raise InputError("give prevalence (or a samples file with a prior for every "
+                             "specimen)", parameters=("prevalence",))
+        prevalence = check_open_probability(prevalence, "prevalence")
     return Cohort(spec.ids, spec.priors(prevalence if missing else 0.5))
 
 

@@ -1,7 +1,7 @@
 """Simulation of whole testing protocols on invented cohorts, for operating characteristics.
 
 :func:`simulate` plays a registered protocol (``individual``, ``dorfman``, ``array``; see
-:mod:`bayespool.simulate.protocols`) on cohorts drawn from a prevalence or per-specimen priors, with
+:mod:`bayespool.simulation.protocols`) on cohorts drawn from a prevalence or per-specimen priors, with
 readouts drawn from the assay model (dilution included), and returns a :class:`Simulation` with
 operating characteristics and their Monte Carlo standard errors. :func:`sweep` runs a grid of
 prevalences and pool sizes.

@@ -3,7 +3,7 @@
 The planner needs joint draws of the statuses, not only marginals: within a positive pool the
 members are negatively correlated ("exactly one of them is positive"), and the value of a split
 depends on it. For a component of m specimens it takes the log weight of every state from the
-Gray-code walk of :mod:`bayespool.decode.exact` and draws states by inverse transform on the
+Gray-code walk of :mod:`bayespool.decoders.exact` and draws states by inverse transform on the
 cumulative weights. Hard constraints (Se or Sp of 1) are log 0: such states get
 weight zero, never NaN.
 """

@@ -1,7 +1,7 @@
 """The Bayesian loop: decode, plan the most informative next pools, read them, repeat.
 
-Each round decodes every readout so far (:func:`bayespool.decode.decode`), plans a batch by expected
-information gain (:func:`bayespool.plan.plan`), and reads it through the :class:`Tester`; the loop
+Each round decodes every readout so far (:func:`bayespool.decoders.decode`), plans a batch by expected
+information gain (:func:`bayespool.planning.plan`), and reads it through the :class:`Tester`; the loop
 stops when every specimen is decided (probability below the negative threshold or above the positive
 one, after at least one readout) or when no test within the limits would tell anything more.
 Specimens still undecided then are called by whether their probability exceeds one half. The first
@@ -38,8 +38,8 @@ class BayesianLoop(Protocol):
         least this fraction of its best one; ``seed``: the planner's draws (else from the
         Tester)."""
         from ...defaults import METHODS
-        from ...plan import DEFAULT_MAX_POOL_SIZE
-        from ...plan.draws import DEFAULT_DRAWS
+        from ...planning import DEFAULT_MAX_POOL_SIZE
+        from ...planning.draws import DEFAULT_DRAWS
         self.max_pool_size = DEFAULT_MAX_POOL_SIZE if max_pool_size is None else int(max_pool_size)
         self.tests_per_round = DEFAULT_TESTS_PER_ROUND if tests is None else int(tests)
         self.method = "auto" if method is None else str(method)
@@ -67,8 +67,8 @@ class BayesianLoop(Protocol):
                 "posterior_draws": self.n_draws, "material_limit": self.max_draws}
 
     def run(self, tester: Tester, prior: np.ndarray) -> Outcome:
-        from ...decode import decode
-        from ...plan import plan
+        from ...decoders import decode
+        from ...planning import plan
         from ...run import Run
         n = tester.n
         ids = pd.DataFrame({"sample": [f"S{i}" for i in range(n)]})
@@ -82,7 +82,8 @@ class BayesianLoop(Protocol):
             left = None
             if self.max_draws is not None:
                 left = np.maximum(self.max_draws - tester.draws, 0)
-            nxt = plan(run, tester.assay, post, tests=self.tests_per_round, method=self.method,
+            nxt = plan(run, tester.assay, posterior=post, tests=self.tests_per_round,
+                       method=self.method,
                        max_pool_size=self.max_pool_size, max_draws=left,
                        n_draws=self.n_draws, seed=rng, min_information=0.0,
                        relative_information=self.relative_information,
