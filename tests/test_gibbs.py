@@ -85,7 +85,7 @@ def test_impossible_readouts_raise():
                                                                   "positive"]})
     run = Run.from_frames(layout, reads, prevalence=0.1)
     with pytest.raises(ImpossibleEvidenceError):
-        decode(run, Assay(1.0, ConstantSensitivity(1.0)), "gibbs", seed=0)
+        decode(run, Assay(1.0, ConstantSensitivity(1.0)), method="gibbs", seed=0)
 
 
 def two_candidates_run():
@@ -232,7 +232,7 @@ def test_bad_options_are_input_errors():
     for opts in ({"chains": 0}, {"max_sweeps": 2}, {"prevalence_prior": "1"},
                  {"prevalence_prior": "0,3"}, {"nonsense": 1}):
         with pytest.raises(InputError):
-            decode(run, ASSAYS[0], "gibbs", seed=0, gibbs_options=opts)
+            decode(run, ASSAYS[0], method="gibbs", seed=0, gibbs_options=opts)
 
 
 def test_large_run_path_watches_only_specimens_near_a_threshold():
@@ -254,18 +254,18 @@ def test_large_run_path_watches_only_specimens_near_a_threshold():
 def test_unknown_prevalence_takes_auto_to_the_sampler_and_is_refused_by_exact():
     from bayespool.errors import InputError
     run = loopy_run(5, n=10)
-    post = decode(run, ASSAYS[0], "auto", seed=1, gibbs_options={"prevalence_prior": (1, 9)})
+    post = decode(run, ASSAYS[0], method="auto", seed=1, gibbs_options={"prevalence_prior": (1, 9)})
     assert post.method == "gibbs" and "prevalence_posterior" in post.diagnostics
     assert any("unknown prevalence" in w for w in post.warnings)
     with pytest.raises(InputError):
-        decode(run, ASSAYS[0], "exact", gibbs_options={"prevalence_prior": (1, 9)})
+        decode(run, ASSAYS[0], method="exact", gibbs_options={"prevalence_prior": (1, 9)})
 
 
 def test_a_single_chain_can_reach_the_ess_target():
     # split R-hat compares the chain's halves; the batch-mean buffer must be long enough for an
     # ESS of 400 from one chain
     run = loopy_run(8)
-    exact = decode(run, ASSAYS[0], "exact")
-    post = decode(run, ASSAYS[0], "gibbs", seed=2, gibbs_options={"chains": 1})
+    exact = decode(run, ASSAYS[0], method="exact")
+    post = decode(run, ASSAYS[0], method="gibbs", seed=2, gibbs_options={"chains": 1})
     assert post.diagnostics["converged"], post.diagnostics["gibbs"]["stop"]
     assert np.abs(post.probability - exact.probability).max() <= 0.04
