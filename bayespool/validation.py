@@ -34,11 +34,11 @@ def check_number(value, name: str) -> float:
                 raise TypeError
             v = float(value)
         except (TypeError, ValueError):
-            raise parameter_error(f"{name} must be a number, got {value!r}", name) from None
+            raise parameter_error(f"`{name}` must be a number, got {value!r}", name) from None
     else:
         v = float(value)
     if not math.isfinite(v):
-        raise parameter_error(f"{name} must be a finite number, got {value!r}", name)
+        raise parameter_error(f"`{name}` must be a finite number, got {value!r}", name)
     return v
 
 
@@ -47,10 +47,10 @@ def check_open_probability(value, name: str) -> float:
     try:
         v = check_number(value, name)
     except InputError:
-        raise parameter_error(f"{name} must be a number strictly between 0 and 1, got {value!r}",
+        raise parameter_error(f"`{name}` must be a number strictly between 0 and 1, got {value!r}",
                               name) from None
     if not 0.0 < v < 1.0:
-        raise parameter_error(f"{name} must be strictly between 0 and 1, got {value!r}", name)
+        raise parameter_error(f"`{name}` must be strictly between 0 and 1, got {value!r}", name)
     return v
 
 
@@ -58,7 +58,7 @@ def check_probability(value, name: str) -> float:
     """A probability in [0, 1] (0 and 1 are allowed: Se or Sp of 1 is handled exactly)."""
     v = check_number(value, name)
     if not 0.0 <= v <= 1.0:
-        raise parameter_error(f"{name} must be between 0 and 1, got {value!r}", name)
+        raise parameter_error(f"`{name}` must be between 0 and 1, got {value!r}", name)
     return v
 
 
@@ -66,7 +66,7 @@ def check_fraction(value, name: str) -> float:
     """A number in [0, 1), such as a damping factor."""
     v = check_number(value, name)
     if not 0.0 <= v < 1.0:
-        raise parameter_error(f"{name} must be at least 0 and below 1, got {value!r}", name)
+        raise parameter_error(f"`{name}` must be at least 0 and below 1, got {value!r}", name)
     return v
 
 
@@ -77,7 +77,7 @@ def check_positive(value, name: str) -> float:
     except InputError:
         v = float("nan")
     if not v > 0.0:
-        raise parameter_error(f"{name} must be a positive number, got {value!r}", name)
+        raise parameter_error(f"`{name}` must be a positive number, got {value!r}", name)
     return v
 
 
@@ -88,25 +88,25 @@ def check_nonnegative(value, name: str) -> float:
     except InputError:
         v = float("nan")
     if not v >= 0.0:
-        raise parameter_error(f"{name} must be a number >= 0, got {value!r}", name)
+        raise parameter_error(f"`{name}` must be a number >= 0, got {value!r}", name)
     return v
 
 
 def check_count(value, name: str, minimum: int = 1) -> int:
     """A whole number >= ``minimum`` (``4.0`` and ``"4"`` pass, ``4.5``, ``True`` and ``"x"`` not)."""
     if isinstance(value, (bool, np.bool_)):
-        raise parameter_error(f"{name} must be a whole number, got {value!r}", name)
+        raise parameter_error(f"`{name}` must be a whole number, got {value!r}", name)
     if isinstance(value, (Integral, np.integer)):
         v = int(value)
     else:
         try:
             v = int(value)
         except (TypeError, ValueError, OverflowError):
-            raise parameter_error(f"{name} must be a whole number, got {value!r}", name) from None
+            raise parameter_error(f"`{name}` must be a whole number, got {value!r}", name) from None
         if v != value and not (isinstance(value, str) and str(v) == value.strip()):
-            raise parameter_error(f"{name} must be a whole number, got {value!r}", name)
+            raise parameter_error(f"`{name}` must be a whole number, got {value!r}", name)
     if v < minimum:
-        raise parameter_error(f"{name} must be at least {minimum}, got {v}", name)
+        raise parameter_error(f"`{name}` must be at least {minimum}, got {v}", name)
     return v
 
 
@@ -114,7 +114,7 @@ def check_choice(value, name: str, choices) -> str:
     """One of ``choices`` (strings), or an error listing them."""
     choices = tuple(choices)
     if not isinstance(value, str) or value not in choices:
-        raise parameter_error(f"unknown {name} {value!r} (choose one of {', '.join(choices)})",
+        raise parameter_error(f"unknown `{name}` {value!r} (choose one of {', '.join(choices)})",
                               name)
     return value
 
@@ -124,7 +124,7 @@ def check_thresholds(negative_below, positive_above) -> tuple[float, float]:
     lo = check_open_probability(negative_below, "negative_below")
     hi = check_open_probability(positive_above, "positive_above")
     if lo > hi:
-        raise parameter_error(f"negative_below ({lo:g}) must not exceed positive_above ({hi:g})",
+        raise parameter_error(f"`negative_below` ({lo:g}) must not exceed `positive_above` ({hi:g})",
                               "negative_below", "positive_above")
     return lo, hi
 
@@ -133,10 +133,10 @@ def _check_seed_value(seed, name: str):
     if seed is None or isinstance(seed, (np.random.Generator, np.random.SeedSequence)):
         return seed
     if isinstance(seed, (bool, np.bool_)) or not isinstance(seed, (Integral, np.integer)):
-        raise parameter_error(f"{name} must be a whole number >= 0, a numpy.random.Generator or "
+        raise parameter_error(f"`{name}` must be a whole number >= 0, a numpy.random.Generator or "
                               f"None, got {seed!r}", name)
     if seed < 0:
-        raise parameter_error(f"{name} must be a whole number >= 0, got {seed!r}", name)
+        raise parameter_error(f"`{name}` must be a whole number >= 0, got {seed!r}", name)
     return int(seed)
 
 
