@@ -18,6 +18,7 @@ PROTOCOLS = {
     "dorfman": "bayespool.simulation.protocols.dorfman:DorfmanTesting",
     "array": "bayespool.simulation.protocols.array:ArrayTesting",
     "bayes": "bayespool.simulation.protocols.bayes:BayesianLoop",
+    "pool-then-code": "bayespool.simulation.protocols.pool_then_code:PoolThenCode",
 }
 
 
