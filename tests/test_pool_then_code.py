@@ -65,7 +65,7 @@ def test_tests_per_specimen_against_the_first_stage_closed_form():
     from bayespool.simulation import simulate
     assay = Assay(0.995, ConstantSensitivity(0.95))
     p, k, n = 0.002, 32, 960
-    sim = simulate("pool-then-code", n, p, assay, runs=150, seed=3, pool_size=k)
+    sim = simulate("pool-then-code", n, prevalence=p, assay=assay, runs=150, seed=3, pool_size=k)
     q = 1 - p
     p_pos = 0.95 * (1 - q**k) + 0.005 * q**k
     expected = 1 / k + p_pos * code_design(k).n_pools / k
