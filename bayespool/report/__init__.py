@@ -24,11 +24,15 @@ DEFAULT_TITLE = "bayespool run report"
 
 
 def build_report(run=None, assay=None, posterior=None, plan=None, calibration=None, title=None, *,
-                 created=None, notes=(), file_name=None, audit=None) -> str:
+                 created=None, notes=(), file_name=None, controls=None, worklist=None,
+                 audit=None) -> str:
     """The report as an HTML string. ``created`` (datetime or text) defaults to now, in UTC;
-    ``notes`` are extra lines for the run summary (e.g. that the data is invented); ``audit`` (a
+    ``notes`` are extra lines for the run summary (e.g. that the data is invented); ``controls``
+    (a :class:`bayespool.controls.ControlCheck`) adds the control status per plate, ``worklist``
+    (a :class:`bayespool.worklist.Worklist`) the destination plate map; ``audit`` (a
     :class:`bayespool.audit.Audit`) is the audit trail, made from the run's input files when not
     given."""
+    from .bench import controls_section, destinations_section
     from .calibration import calibration_section, observed_points
     from .calls import calls_section, map_section
     from .groups import groups_section
@@ -39,7 +43,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     from .summary import assay_section, decoder_section, run_section
     from .why import why_section
 
-    if all(x is None for x in (run, assay, posterior, plan, calibration)):
+    if all(x is None for x in (run, assay, posterior, plan, calibration, worklist)):
         raise ValueError("nothing to report: give at least one of run, assay, posterior, plan, "
                          "calibration")
     if run is not None and posterior is not None and posterior.n_samples != run.n_samples:
@@ -56,6 +60,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         if calibration is not None else (None, None)
     if run is not None:
         add("summary", "Run", run_section(run, notes, fitted_prevalence(calibration)))
+    add("controls", "Controls", controls_section(controls))
     if posterior is not None:
         add("decoder", "Decoder", decoder_section(posterior, run))
         mapped = map_section(posterior, run)
@@ -67,6 +72,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         add("positives", "Positives", positives_section(posterior))
     if plan is not None:
         add("plan", "Next pools", plan_section(plan, posterior))
+    add("destinations", "Destination plates", destinations_section(worklist))
     if assay is not None:
         shown = set(calibration.summary()) if hasattr(calibration, "summary") else set()
         add("assay", "Assay", assay_section(assay, run, points, shown_elsewhere=shown))
