@@ -659,8 +659,16 @@ LABELS = {"tests_per_sample": "tests per specimen", "sensitivity": "sensitivity"
           "draws_per_sample": "draws per specimen"}
 
 
+def _param_text(value) -> str:
+    """A protocol parameter for people: ``none`` rather than Python's None."""
+    if value is None:
+        return "none"
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
 def _print_simulation(sim, table) -> None:
-    params = ", ".join(f"{k} {v}" for k, v in sim.parameters.items())
+    params = ", ".join(f"{k.replace('_', ' ')} {_param_text(v)}"
+                       for k, v in sim.parameters.items())
     c = sim.characteristics
     prev = f"prevalence {sim.prevalence:g}" if sim.prevalence is not None else "per-specimen priors"
     print(f"{sim.scheme}" + (f" ({params})" if params else "") + f", {c.specimens} specimens, "
