@@ -45,12 +45,18 @@ def _check_pools_possible(run: Run, lik_ptr, loglik):
 
 
 def sample_columns(run: Run) -> dict:
-    """Per-specimen counts of read pools and of pools with a positive readout."""
+    """Per-specimen counts of read pools and of pools with a positive readout, and the plate and
+    well of the samples file when it gives them (so the posterior can be found on the bench)."""
     owner_pos = np.repeat((run.n_positive > 0), run.pool_size)
     owner_read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
     n = run.n_samples
-    return {"pools": np.bincount(run.pool_members[owner_read], minlength=n),
-            "positive_pools": np.bincount(run.pool_members[owner_pos], minlength=n)}
+    out = {"pools": np.bincount(run.pool_members[owner_read], minlength=n),
+           "positive_pools": np.bincount(run.pool_members[owner_pos], minlength=n)}
+    for name in ("plate", "well"):
+        values = run.sample_column(name)
+        if values is not None:
+            out[name] = values
+    return out
 
 
 # ---- decoders of a set of components, all with one signature
