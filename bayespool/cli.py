@@ -118,7 +118,6 @@ def _load_inputs(args):
     """The run and the assay; the note about a default assay comes only once the inputs read
     cleanly, so bad input gets exactly one line on stderr."""
     from .assay import DEFAULT_ASSAY, Assay
-    from .run import Run
     from .controls import read_run
     assay = Assay.read(args.assay) if args.assay else DEFAULT_ASSAY
     run, args.control_check = read_run(args.layout, args.readouts, args.samples,

@@ -6,7 +6,6 @@ posterior to the last digit), pandas' reader for the fast path, openpyxl (the wo
 itself writes the test workbooks). That spreadsheets in many locales save semicolon-separated files
 with a decimal comma, and that plates are 96 (8 x 12) or 384 (16 x 24) wells, is common practice.
 """
-import numpy as np
 import pandas as pd
 import pytest
 

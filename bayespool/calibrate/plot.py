@@ -82,7 +82,8 @@ def figure(result: Calibration):
     title = f"Sensitivity against dilution: {result.model} model from {kind}"
     if result.identifiable is False:  # written only on request (--allow-unidentified)
         title += "\nnot identified by the data: the curve is one of many that fit equally well"
-    ax.set_title(title, fontsize=10, color="#b00000" if result.identifiable is False else None)
+    ax.set_title(title, fontsize=10,
+                 **({"color": "#b00000"} if result.identifiable is False else {}))
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
     sp = result.assay.specificity
