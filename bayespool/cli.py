@@ -695,6 +695,114 @@ def _run_plan(args):
     return 0
 
 
+# ---- prevalence
+def _pair(text: str) -> tuple[float, float]:
+    values = _float_list(text)
+    if len(values) != 2:
+        raise argparse.ArgumentTypeError(f"expected two numbers A,B, got {text!r}")
+    return values[0], values[1]
+
+
+def _names(text: str) -> list[str]:
+    return [c.strip() for c in text.split(",") if c.strip()]
+
+
+def _with_flags(exc: InputError, flags: dict) -> InputError:
+    """A library error that begins with a Python parameter's name, reworded with the flag."""
+    for name, flag in flags.items():
+        if exc.message.startswith((name + " ", name + ":")):
+            return InputError(flag + exc.message[len(name):], exc.file, exc.line, exc.column)
+    return exc
+
+
+def _add_prevalence(sub):
+    from .surveillance.intervals import METHODS as INTERVALS
+    p = sub.add_parser("prevalence", help="prevalence by group from pooled readouts (surveillance)",
+                       description="Estimate the prevalence (for example an infection rate per "
+                       "1000) by group from pools of any sizes, with an interval, the "
+                       "bias-corrected estimate and the minimum infection rate; without --assay "
+                       "the test is taken as perfect. Estimates describe the data and the assay "
+                       "model given. " + CAUTION)
+    src = p.add_argument_group("data (one of)")
+    src.add_argument("--pools", metavar="CSV", help="pool,size,result[,group columns]: one row "
+                     "per readout; several rows of one pool are replicates")
+    src.add_argument("--layout", metavar="CSV", help="a run's pool,sample memberships (sizes)")
+    src.add_argument("--readouts", metavar="CSV", help="the run's pool,result readouts")
+    src.add_argument("--samples", metavar="CSV", help="the run's samples (group columns)")
+    p.add_argument("--assay", metavar="TOML", help="assay model: Se(k, d) and Sp enter the "
+                   "likelihood (default: a perfect test, as the classic estimators assume)")
+    p.add_argument("--by", type=_names, default=[], metavar="COLS",
+                   help="grouping columns, comma-separated (e.g. site,week)")
+    p.add_argument("--interval", choices=INTERVALS, default="skew-score",
+                   help="interval method (default: %(default)s, the skewness-corrected score "
+                   "interval; exact needs equal pool sizes)")
+    p.add_argument("--level", type=_probability, default=0.95, metavar="L",
+                   help="confidence level (default: %(default)s)")
+    p.add_argument("--per", type=_probability, default=1.0, metavar="N",
+                   help="estimates per N specimens, e.g. 1000 (default: %(default)s)")
+    p.add_argument("--prior", type=_pair, default=(1.0, 1.0), metavar="A,B",
+                   help="Beta(A, B) prior for --interval bayes (default: 1,1)")
+    p.add_argument("--compare", type=_names, default=None, metavar="A,B",
+                   help="estimate the difference between groups A and B (automatic when --by "
+                   "names one column with exactly two values)")
+    p.add_argument("--out", metavar="CSV", help="write the estimates table")
+    p.add_argument("--report", metavar="HTML", help="write an offline HTML report")
+    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    return p
+
+
+PREVALENCE_FLAGS = {"level": "--level", "per": "--per", "prior": "--prior",
+                    "compare": "--compare", "interval": "--interval", "by": "--by"}
+
+
+def _run_prevalence(args):
+    from .io import check_output_path, check_outputs_apart, write_frame
+    from .surveillance import estimate_prevalence, pools_from_run, read_pools
+    if args.pools and (args.layout or args.readouts or args.samples):
+        raise InputError("give either --pools or --layout/--readouts, not both")
+    if not args.pools and not (args.layout and args.readouts):
+        raise InputError("give --pools, or --layout and --readouts of a run")
+    inputs = {"pools": args.pools, "layout": args.layout, "readouts": args.readouts,
+              "samples": args.samples, "assay": args.assay}
+    outputs = {"--out": args.out, "--report": args.report}
+    check_outputs_apart(outputs, inputs)
+    for path in outputs.values():
+        if path:
+            check_output_path(path)
+    assay = None
+    if args.assay:
+        from .assay import Assay
+        assay = Assay.read(args.assay)
+    if args.pools:
+        data = read_pools(args.pools)
+    else:
+        from .run import Run
+        data = pools_from_run(Run.read(args.layout, args.readouts, args.samples))
+    try:
+        result = estimate_prevalence(data, assay, by=args.by, interval=args.interval,
+                                     level=args.level, per=args.per, prior=args.prior,
+                                     compare=args.compare)
+    except InputError as exc:
+        raise _with_flags(exc, PREVALENCE_FLAGS) from None
+    if args.out:
+        write_frame(result.to_frame().reset_index(), args.out)
+    if args.report:
+        from .report import write_report
+        write_report(args.report, prevalence=result, title="bayespool prevalence report",
+                     notes=[f"input: {v}" for v in inputs.values() if v])
+    if args.json:
+        summary = result.summary()
+        summary.update({k: v for k, v in (("out", args.out), ("report", args.report)) if v})
+        print(json.dumps(summary, indent=2))
+    else:
+        print(result)
+        written = [x for x in (args.out, args.report) if x]
+        if written:
+            print(f"wrote {' and '.join(written)}")
+        print(CAUTION)
+    return 0
+
+
 COMMANDS = {
     "decode": (_add_decode, _run_decode),
     "demo": (_add_demo, _run_demo),
@@ -702,6 +810,7 @@ COMMANDS = {
     "simulate": (_add_simulate, _run_simulate),
     "calibrate": (_add_calibrate, _run_calibrate),
     "plan": (_add_plan, _run_plan),
+    "prevalence": (_add_prevalence, _run_prevalence),
 }
 
 

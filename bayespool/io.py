@@ -221,6 +221,23 @@ def check_output_path(path: str | os.PathLike) -> Path:
     return target
 
 
+def check_outputs_apart(outputs, inputs) -> None:
+    """Refuse an output path that is one of the inputs (or the same file under another name), and
+    two outputs on one path."""
+    seen = {}
+    for flag, path in outputs.items():
+        if not path:
+            continue
+        target = Path(path).resolve()
+        for name, src in inputs.items():
+            if src and (Path(src).resolve() == target or
+                        (target.exists() and Path(src).exists() and os.path.samefile(src, target))):
+                raise InputError(f"{flag} would overwrite the {name} input", str(path))
+        if target in seen:
+            raise InputError(f"{flag} and {seen[target]} name the same file", str(path))
+        seen[target] = flag
+
+
 @contextlib.contextmanager
 def atomic_output(path: str | os.PathLike, mode: str = "w"):
     """Yield an open temporary file beside ``path``; rename it into place only on success."""

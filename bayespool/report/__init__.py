@@ -24,9 +24,10 @@ DEFAULT_TITLE = "bayespool run report"
 
 
 def build_report(run=None, assay=None, posterior=None, plan=None, calibration=None, title=None, *,
-                 created=None, notes=(), file_name=None) -> str:
+                 created=None, notes=(), file_name=None, prevalence=None) -> str:
     """The report as an HTML string. ``created`` (datetime or text) defaults to now, in UTC;
-    ``notes`` are extra lines for the run summary (e.g. that the data is invented)."""
+    ``notes`` are extra lines for the run summary (e.g. that the data is invented);
+    ``prevalence`` is a :class:`bayespool.surveillance.PrevalenceEstimates` (estimates by group)."""
     from .calibration import calibration_section, observed_points
     from .calls import calls_section, map_section
     from .groups import groups_section
@@ -35,9 +36,9 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     from .positives import positives_section
     from .summary import assay_section, decoder_section, run_section
 
-    if all(x is None for x in (run, assay, posterior, plan, calibration)):
+    if all(x is None for x in (run, assay, posterior, plan, calibration, prevalence)):
         raise ValueError("nothing to report: give at least one of run, assay, posterior, plan, "
-                         "calibration")
+                         "calibration, prevalence")
     if run is not None and posterior is not None and posterior.n_samples != run.n_samples:
         raise ValueError(f"the posterior has {posterior.n_samples} specimens but the run has "
                          f"{run.n_samples}")
@@ -52,6 +53,9 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         if calibration is not None else (None, None)
     if run is not None:
         add("summary", "Run", run_section(run, notes))
+    if prevalence is not None:
+        from .prevalence import prevalence_section
+        add("prevalence", "Prevalence", prevalence_section(prevalence))
     if posterior is not None:
         add("decoder", "Decoder", decoder_section(posterior, run))
         mapped = map_section(posterior, run)
@@ -77,6 +81,8 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         meta.append(f"{posterior.n_samples} specimens: {c['positive']} positive, "
                     f"{c['inconclusive']} inconclusive, {c['negative']} negative "
                     f"(decoder: {posterior.method})")
+    if prevalence is not None:
+        meta.extend(notes if run is None else ())
     footer = f"bayespool {__version__}. This file is self-contained and loads nothing."
     return page(title or DEFAULT_TITLE, meta, toc, sections, footer)
 
