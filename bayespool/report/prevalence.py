@@ -57,6 +57,10 @@ def _chart(result, frame: pd.DataFrame) -> str:
                 ax.fill_between(t, lo, up, color=line.get_color(), alpha=0.18, lw=0)
             if rest:
                 ax.legend(fontsize=8, frameon=False)
+            ticks = pd.DataFrame({"t": when, "label": frame[time_col].astype(str)}) \
+                .drop_duplicates("t").sort_values("t")
+            step = max(1, len(ticks) // 8)
+            ax.set_xticks(ticks["t"].to_numpy()[::step], ticks["label"].tolist()[::step])
             ax.set_xlabel(time_col)
         else:
             labels = (frame[by].astype(str).agg(" / ".join, axis=1) if by
@@ -88,5 +92,8 @@ def prevalence_section(result) -> str:
         items.append(("Difference", text(str(result.difference))))
     for n in result.notes:
         items.append(("Note", text(n)))
-    table = frame_table(frame, caption="Prevalence by group")
+    shown = frame.drop(columns=[c for c in ("interval", "level", "per") if c in frame.columns])
+    if not shown["note"].astype(bool).any():
+        shown = shown.drop(columns="note")
+    table = frame_table(shown, caption="Prevalence by group")
     return section("prevalence", "Prevalence", facts(items) + el("figure", chart) + table, lead)

@@ -15,15 +15,13 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq
-from scipy.special import expit, logit
+from scipy.special import expit
 
+from . import bracket
 from .likelihood import PooledLikelihood
 
-__all__ = ["Estimate", "maximum_likelihood", "bias_corrected", "minimum_infection_rate",
-           "SEARCH_FROM"]
+__all__ = ["Estimate", "maximum_likelihood", "bias_corrected", "minimum_infection_rate"]
 
-SEARCH_FROM = 1e-12   # the smallest prevalence searched; an estimate below it is reported as 0
 
 
 @dataclass(frozen=True)
@@ -34,27 +32,18 @@ class Estimate:
     bound: str | None = None   # "lower" or "upper" when the estimate is an edge of [0, 1]
 
 
-def _root_in_unit(f, lik: PooledLikelihood) -> Estimate:
-    """The first root of an estimating function f that falls from positive to negative on (0, 1),
-    bracketed on a logit grid and refined by Brent's method; 0 when f is not positive at the
-    bottom, 1 when it never turns negative. Points where f cannot be evaluated (underflow far
-    from the data) are skipped."""
-    u = np.linspace(logit(SEARCH_FROM), logit(lik.upper_search_limit()), 160)
-    prev = None
-    for i, q in enumerate(expit(u)):
-        with np.errstate(all="ignore"):
-            v = f(q)
-        if not np.isfinite(v):
-            continue
-        if prev is None:
-            if v <= 0:
-                return Estimate(0.0, "lower")
-        elif v < 0:
-            root = brentq(lambda x: f(expit(x)), u[prev], u[i], xtol=1e-14, rtol=8.9e-16,
-                          maxiter=500)
-            return Estimate(float(expit(root)))
-        prev = i
-    return Estimate(1.0, "upper")
+def _root_in_unit(f, lik: PooledLikelihood, guess: float) -> Estimate:
+    """The root of a decreasing estimating function f on (0, 1) nearest ``guess``; 0 when f is
+    not positive down to the bottom of the search, 1 when it stays positive to the top."""
+    u = bracket.grid(lik.upper_search_limit())
+    s = bracket.nearest(f, u, guess)
+    with np.errstate(all="ignore"):
+        above = f(expit(u[s])) > 0
+    if above:
+        i, j = bracket.walk(f, u, s, +1, lambda v: v > 0)
+        return Estimate(1.0, "upper") if j is None else Estimate(bracket.refine(f, u, i, j))
+    i, j = bracket.walk(f, u, s, -1, lambda v: v <= 0)
+    return Estimate(0.0, "lower") if j is None else Estimate(bracket.refine(f, u, j, i))
 
 
 def maximum_likelihood(lik: PooledLikelihood) -> Estimate:
@@ -63,18 +52,19 @@ def maximum_likelihood(lik: PooledLikelihood) -> Estimate:
     readouts than false positives would give), or 1 when every pool reads positive."""
     if lik.score(0.0) <= 0:
         return Estimate(0.0, "lower")
-    return _root_in_unit(lik.score, lik)
+    return _root_in_unit(lik.score, lik, guess=max(minimum_infection_rate(lik), 1e-6))
 
 
-def bias_corrected(lik: PooledLikelihood) -> Estimate:
+def bias_corrected(lik: PooledLikelihood, mle: Estimate | None = None) -> Estimate:
     """Firth's bias-corrected estimate (the root of the modified score); 0 when the MLE is 0 under
-    a perfect test (Burrows' estimate is then 0 as well)."""
+    a perfect test (Burrows' estimate is then 0 as well). The search starts at the MLE."""
     def modified(p):
         m = lik.moments(p)
         return m.score - (m.kappa_111 + 2.0 * m.kappa_11_1) / (2.0 * m.expected)
     if lik.perfect and lik.cells.positive_pools() == 0:
         return Estimate(0.0, "lower")
-    return _root_in_unit(modified, lik)
+    mle = mle or maximum_likelihood(lik)
+    return _root_in_unit(modified, lik, guess=min(max(mle.value, 1e-9), 1 - 1e-9))
 
 
 def minimum_infection_rate(lik: PooledLikelihood) -> float:

@@ -20,11 +20,11 @@ import math
 
 import numpy as np
 from scipy.optimize import brentq, minimize_scalar
-from scipy.special import expit, logit
+from scipy.special import expit
 from scipy.stats import chi2, norm
 
 from ..errors import InputError
-from .estimators import SEARCH_FROM
+from . import bracket
 from .likelihood import PooledLikelihood
 
 __all__ = ["METHODS", "interval"]
@@ -32,39 +32,29 @@ __all__ = ["METHODS", "interval"]
 METHODS = ("skew-score", "score", "likelihood", "exact", "bayes")
 
 
-GRID = 240   # points on the logit scale that bracket the limits before Brent's method refines them
-
-
 def _region(outside, estimate: float, hi: float) -> tuple[float, float]:
     """The interval {p : outside(p) <= 0} around the estimate.
 
-    ``outside`` is evaluated on a logit grid over [SEARCH_FROM, hi]; the run of inside points that
-    holds the estimate (or is nearest to it) is the region, and each end that lies within the
-    grid is refined by Brent's method. An estimate of 0 (or 1) makes that end 0 (or 1), the
-    convention for intervals at the edge of the parameter space.
+    The walk starts at the estimate (or, when a strongly skewed score puts the estimate itself
+    outside, at the nearest inside point) and goes down and up the logit grid to the first
+    outside points; Brent's method refines each end. An end that reaches the grid's edge, or an
+    estimate of 0 (or 1), makes that limit 0 (or 1), the convention at the edge of [0, 1].
     """
-    u = np.linspace(logit(SEARCH_FROM), logit(hi), GRID)
-    u = np.union1d(u, [logit(min(max(estimate, SEARCH_FROM), hi))])
-    vals = np.array([outside(q) for q in expit(u)])
-    inside = vals <= 0
-    if not inside.any():
-        raise ArithmeticError("no prevalence lies inside the interval")  # pragma: no cover
-    centre = int(np.argmin(np.abs(u - logit(min(max(estimate, SEARCH_FROM), hi)))))
-    idx = np.flatnonzero(inside)
-    centre = int(idx[np.argmin(np.abs(idx - centre))])
-    a = centre
-    while a > 0 and inside[a - 1]:
-        a -= 1
-    b = centre
-    while b < len(u) - 1 and inside[b + 1]:
-        b += 1
-
-    def refine(i, j):
-        f = lambda v: outside(expit(v))
-        return float(expit(brentq(f, u[i], u[j], xtol=1e-13, rtol=8.9e-16, maxiter=300)))
-
-    lower = 0.0 if (a == 0 or estimate <= 0) else refine(a - 1, a)
-    upper = 1.0 if (b == len(u) - 1 or estimate >= 1) else refine(b, b + 1)
+    u = bracket.grid(hi)
+    s = bracket.nearest(outside, u, estimate)
+    is_in = lambda v: v <= 0
+    with np.errstate(all="ignore"):
+        start_inside = outside(expit(u[s])) <= 0
+    if not start_inside:
+        found = [j for j in (bracket.walk(outside, u, s, d, lambda v: not v <= 0)[1]
+                             for d in (-1, +1)) if j is not None]
+        if not found:
+            raise ArithmeticError("no prevalence lies inside the interval")  # pragma: no cover
+        s = min(found, key=lambda j: abs(j - s))
+    a, ja = bracket.walk(outside, u, s, -1, is_in)
+    b, jb = bracket.walk(outside, u, s, +1, is_in)
+    lower = 0.0 if (ja is None or estimate <= 0) else bracket.refine(outside, u, ja, a)
+    upper = 1.0 if (jb is None or estimate >= 1) else bracket.refine(outside, u, b, jb)
     return lower, upper
 
 

@@ -223,7 +223,7 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str = "skew-score
         cells = PoolCells.from_pools(frame["size"], frame["n_positive"], frame["n_negative"])
         lik = PooledLikelihood(cells, assay, data.source)
         mle = maximum_likelihood(lik)
-        bc = bias_corrected(lik)
+        bc = bias_corrected(lik, mle)
         lo, up = _interval(lik, interval, level, mle.value, prior, key)
         note = clipped_note(lik, mle)
         g = GroupEstimate(key, cells.pools, cells.positive_pools(), cells.specimens, mle.value,
