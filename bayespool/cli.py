@@ -728,7 +728,7 @@ def _with_flags(exc: InputError, flags: dict) -> InputError:
 
 
 def _add_prevalence(sub):
-    from .surveillance.intervals import METHODS as INTERVALS
+    from .defaults import PREVALENCE_INTERVALS as INTERVALS
     p = sub.add_parser("prevalence", help="prevalence by group from pooled readouts (surveillance)",
                        description="Estimate the prevalence (for example an infection rate per "
                        "1000) by group from pools of any sizes, with an interval, the "

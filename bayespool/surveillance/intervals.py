@@ -23,13 +23,14 @@ from scipy.optimize import brentq, minimize_scalar
 from scipy.special import expit
 from scipy.stats import chi2, norm
 
+from ..defaults import PREVALENCE_INTERVALS
 from ..errors import InputError
 from . import bracket
 from .likelihood import PooledLikelihood
 
 __all__ = ["METHODS", "interval"]
 
-METHODS = ("skew-score", "score", "likelihood", "exact", "bayes")
+METHODS = PREVALENCE_INTERVALS
 
 
 def _region(outside, estimate: float, hi: float) -> tuple[float, float]:
