@@ -37,8 +37,10 @@ class PooledData:
     table: Table | None = None   # the file the pools came from, for errors naming line and column
 
     def check_by(self, by) -> list:
-        """The grouping columns, checked against the file's columns."""
-        by = [c.strip() for c in ([by] if isinstance(by, str) else list(by or ())) if c.strip()]
+        """The grouping columns, checked against the file's columns (matched in any case, as the
+        file's headers are)."""
+        by = [c.strip().lower() for c in ([by] if isinstance(by, str) else list(by or ()))
+              if c.strip()]
         for c in by:
             if c not in self.group_columns:
                 have = ", ".join(self.group_columns) or "none"
@@ -132,14 +134,10 @@ def read_pools(path) -> PooledData:
 
 
 def pools_from_frame(frame: pd.DataFrame) -> PooledData:
-    """The same from a DataFrame with the columns of a pools file (values read as text)."""
-    missing = [c for c in REQUIRED if c not in frame.columns]
-    if missing:
-        raise InputError(f"pools lacks column(s) {', '.join(missing)}")
-    f = frame.astype(str).apply(lambda c: c.str.strip()).replace({"nan": "", "None": "",
-                                                                   "<NA>": ""})
-    table = Table(f.reset_index(drop=True), "<pools>", [str(c) for c in f.columns])
-    data = _from_table(table)
+    """The same from a DataFrame with the columns of a pools file (values read as text; errors
+    name the 0-based row and the column)."""
+    from ..io import FrameTable
+    data = _from_table(FrameTable(frame, "pools", list(REQUIRED), "pools"))
     data.source = None
     return data
 
