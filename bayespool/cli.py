@@ -12,7 +12,7 @@ import os
 import sys
 import warnings
 
-from .errors import InputError
+from .errors import ImpossibleEvidenceError, InputError
 
 CAUTION = ("Statistical decision support, not a diagnostic device: confirm results by the "
            "laboratory's validated procedure, local regulations and the responsible licensed "
@@ -903,6 +903,91 @@ def _run_prevalence(args):
     return 0
 
 
+# ---- regress
+def _add_regress(sub):
+    from .defaults import REGRESSION_LINKS
+    p = sub.add_parser("regress", help="individual risk on covariates from pooled readouts "
+                       "(group testing regression); fitted risks as priors",
+                       description="Fit each specimen's risk on its covariates (columns of the "
+                       "samples file) from pooled readouts of any layout, by maximum likelihood "
+                       "on the exact marginal likelihood of the readouts (EM over the latent "
+                       "statuses), or Monte Carlo EM with the Gibbs sampler for large linked "
+                       "groups. Without --assay the test is taken as perfect. Estimates describe "
+                       "the data and the assay model given. " + CAUTION)
+    p.add_argument("--layout", required=True, metavar="CSV", help="pool,sample memberships")
+    p.add_argument("--readouts", required=True, metavar="CSV", help="pool,result readouts "
+                   "(individual follow-up tests are pools of one)")
+    p.add_argument("--samples", required=True, metavar="CSV",
+                   help="sample plus the covariate columns the formula uses")
+    p.add_argument("--assay", metavar="TOML", help="assay model (default: a perfect test)")
+    p.add_argument("--formula", required=True, metavar="F",
+                   help="covariates in formula syntax, e.g. \"age + C(site)\"")
+    p.add_argument("--link", choices=REGRESSION_LINKS, default="logit",
+                   help="link of risk to covariates (default: %(default)s)")
+    p.add_argument("--method", choices=("auto", "exact", "gibbs"), default="auto",
+                   help="E-step: exact enumeration of linked groups, or the Gibbs sampler "
+                   "(default: %(default)s, exact when every linked group has at most 22 samples)")
+    p.add_argument("--level", type=_probability, default=0.95, metavar="L",
+                   help="level of the coefficient intervals (default: %(default)s)")
+    p.add_argument("--seed", type=int, default=None, metavar="N",
+                   help="random seed of the Gibbs sampler (reproducible fits)")
+    p.add_argument("--out", metavar="CSV", help="write the coefficients: "
+                   "term,estimate,std_error,lower,upper")
+    p.add_argument("--priors", metavar="CSV", help="write the samples file with a prior column "
+                   "from the fitted risks (for decode, plan and design)")
+    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    return p
+
+
+REGRESS_FLAGS = {"formula": "--formula", "link": "--link", "method": "--method",
+                 "level": "--level", "max_iter": "--max-iter"}
+
+
+def _run_regress(args):
+    from .io import write_frame
+    from .run import Run
+    from .surveillance.regression import fit_regression
+    _check_outputs(args, out=args.out, priors=args.priors)
+    assay = None
+    if args.assay:
+        from .assay import Assay
+        assay = Assay.read(args.assay)
+    run = Run.read(args.layout, args.readouts, args.samples)
+    run.sources["assay"] = args.assay
+    if assay is None:
+        from .assay import PERFECT_ASSAY
+        assay = PERFECT_ASSAY
+    try:
+        fit = fit_regression(run, assay, formula=args.formula, link=args.link,
+                             method=args.method, level=args.level, seed=args.seed)
+    except InputError as exc:
+        if isinstance(exc, ImpossibleEvidenceError) and not args.assay:
+            raise InputError(exc.message + " (no --assay was given, so the test is taken as "
+                             "perfect; give the assay file)", exc.file, exc.line,
+                             exc.column) from None
+        raise _with_flags(exc, REGRESS_FLAGS) from None
+    if args.out:
+        write_frame(fit.coefficients(), args.out)
+    if args.priors:
+        write_frame(fit.priors_frame(), args.priors)
+    if not args.assay:
+        _note(args, "no --assay given: the test is taken as perfect (Se = Sp = 1)")
+    for n in fit.notes:
+        _note(args, n)
+    if args.json:
+        summary = fit.summary()
+        summary["assay"] = assay.describe() if args.assay else "perfect (Se = Sp = 1)"
+        summary.update({k: v for k, v in (("out", args.out), ("priors", args.priors)) if v})
+        print(json.dumps(summary, indent=2))
+    else:
+        print(fit)
+        written = [x for x in (args.out, args.priors) if x]
+        if written:
+            print(f"wrote {' and '.join(written)}")
+        print(CAUTION)
+    return 0
+
+
 COMMANDS = {
     "assay": (_add_assay, _run_assay),
     "decode": (_add_decode, _run_decode),
@@ -912,6 +997,7 @@ COMMANDS = {
     "calibrate": (_add_calibrate, _run_calibrate),
     "plan": (_add_plan, _run_plan),
     "prevalence": (_add_prevalence, _run_prevalence),
+    "regress": (_add_regress, _run_regress),
 }
 
 

@@ -139,3 +139,66 @@ def test_assay_enters(cli, pools, tmp_path):
     imperfect = json.loads(res.out)["groups"][0]
     assert imperfect["mle"] > perfect["mle"]   # dilution hides positives, so more are inferred
     assert "dilution" in json.loads(res.out)["assay"]
+
+
+# ---- regress
+def regress_files(tmp_path):
+    lay = write_csv(tmp_path / "layout.csv",
+                    [(f"P{t}", f"S{t}{j}") for t in range(6) for j in range(2)]
+                    + [("R00", "S00"), ("R01", "S01"), ("R50", "S50"), ("R51", "S51")],
+                    ["pool", "sample"])
+    rd = write_csv(tmp_path / "readouts.csv",
+                   [("P0", "positive")] + [(f"P{t}", "negative") for t in range(1, 5)]
+                   + [("P5", "positive"), ("R00", "positive"), ("R01", "negative"),
+                      ("R50", "negative"), ("R51", "positive")], ["pool", "result"])
+    sm = write_csv(tmp_path / "samples.csv",
+                   [(f"S{t}{j}", 30 + 7 * t + j, "ab"[(t + j) % 2]) for t in range(6)
+                    for j in range(2)], ["sample", "age", "site"])
+    return lay, rd, sm
+
+
+def test_regress_json_priors_and_out(cli, tmp_path):
+    lay, rd, sm = regress_files(tmp_path)
+    out, pri = tmp_path / "coef.csv", tmp_path / "priors.csv"
+    res = cli("regress", "--layout", lay, "--readouts", rd, "--samples", sm, "--formula",
+              "age + C(site)", "--json", "--out", out, "--priors", pri)
+    assert res.code == 0, res.err
+    js = json.loads(res.out)
+    assert [c["term"] for c in js["coefficients"]] == ["Intercept", "age", "C(site)[T.b]"]
+    assert set(js["coefficients"][0]) == {"term", "estimate", "std_error", "lower", "upper"}
+    assert out.read_text().startswith("term,estimate,std_error,lower,upper\nIntercept,")
+    priors = pri.read_text().splitlines()
+    assert priors[0] == "sample,age,site,prior" and len(priors) == 13
+    # the priors file is ready for decode
+    dec = cli("decode", "--layout", lay, "--readouts", rd, "--samples", pri, "--out",
+              tmp_path / "post.csv")
+    assert dec.code == 0, dec.err
+
+
+@pytest.mark.parametrize("change,needles", [
+    ({"--formula": "age + C(region)"}, ["samples.csv", "line 1", "region"]),
+    ({"--formula": "age +"}, ["--formula"]),
+    ({"--level": "0"}, ["--level"])])
+def test_regress_bad_input(cli, tmp_path, change, needles):
+    lay, rd, sm = regress_files(tmp_path)
+    args = {"--layout": lay, "--readouts": rd, "--samples": sm, "--formula": "age"}
+    args.update(change)
+    flat = [x for kv in args.items() for x in kv]
+    assert_bad(cli("regress", *flat), *needles)
+
+
+def test_regress_blank_covariate_names_line_and_column(cli, tmp_path):
+    lay, rd, sm = regress_files(tmp_path)
+    text = sm.read_text().splitlines()
+    text[3] = text[3].split(",")[0] + ",," + text[3].split(",")[2]
+    sm.write_text("\n".join(text) + "\n")
+    assert_bad(cli("regress", "--layout", lay, "--readouts", rd, "--samples", sm, "--formula",
+                   "age"), "samples.csv", "line 4", "column 2")
+
+
+def test_regress_priors_never_overwrite_the_samples(cli, tmp_path):
+    lay, rd, sm = regress_files(tmp_path)
+    before = sm.read_bytes()
+    assert_bad(cli("regress", "--layout", lay, "--readouts", rd, "--samples", sm, "--formula",
+                   "age", "--priors", sm), "--priors would overwrite")
+    assert sm.read_bytes() == before
