@@ -382,6 +382,10 @@ def _add_design(sub):
     p.add_argument("--fill", choices=("columns", "rows"),
                    help="dorfman on plates (samples file with plate and well): pool neighbouring "
                    "wells down the columns (A1, B1, ...; default) or along the rows (A1, A2, ...)")
+    p.add_argument("--by-risk", action="store_true",
+                   help="dorfman: pool specimens of similar prior (samples file with a prior "
+                   "column, e.g. from bayespool regress --priors); without --pool-size, sizes up "
+                   "to --max-pool-size with the fewest expected tests")
     p.add_argument("--rows", type=int, metavar="R",
                    help="array: rows per grid (default 8 x 12, or near-square for few specimens; "
                    "on plates, the plate's own rows and columns, or R x C tiles laid on it)")
@@ -416,7 +420,7 @@ def _add_design(sub):
 
 def _design_options(args) -> dict:
     if args.scheme == "dorfman":
-        return {"pool_size": args.pool_size, "fill": args.fill}
+        return {"pool_size": args.pool_size, "fill": args.fill, "by_risk": args.by_risk}
     if args.scheme == "array":
         return {"rows": args.rows, "cols": args.cols}
     if args.scheme == "kautz-singleton":
@@ -430,6 +434,8 @@ def _design_options(args) -> dict:
 def _run_design(args):
     from .design import make_design, optimal_dorfman
     from .io import write_frame
+    if args.by_risk and args.scheme != "dorfman":
+        raise InputError("--by-risk is for --scheme dorfman")
     _check_outputs(args, out=args.out, worklist=args.worklist)
     summary = {}
     if args.optimize:
