@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError
+from .checks import check_beta_prior, check_level, check_positive
 from .difference import Difference, difference
 from .estimators import (bias_corrected, clipped_note, maximum_likelihood,
                          minimum_infection_rate)
@@ -131,36 +132,6 @@ def _json_number(v: float):
     return None if v is None or (isinstance(v, float) and math.isnan(v)) else float(v)
 
 
-def _check_level(level) -> float:
-    try:
-        v = float(level)
-    except (TypeError, ValueError):
-        raise InputError(f"level must be a number strictly between 0 and 1, got {level!r}") from None
-    if not 0.0 < v < 1.0:
-        raise InputError(f"level must be strictly between 0 and 1, got {level!r}")
-    return v
-
-
-def _check_per(per) -> float:
-    try:
-        v = float(per)
-    except (TypeError, ValueError):
-        raise InputError(f"per must be a positive number, got {per!r}") from None
-    if not (math.isfinite(v) and v > 0):
-        raise InputError(f"per must be a positive number, got {per!r}")
-    return v
-
-
-def _check_prior(prior) -> tuple[float, float]:
-    try:
-        a, b = (float(x) for x in prior)
-    except (TypeError, ValueError):
-        raise InputError(f"prior must be two positive numbers (a, b), got {prior!r}") from None
-    if not (a > 0 and b > 0 and math.isfinite(a) and math.isfinite(b)):
-        raise InputError(f"prior must be two positive numbers (a, b), got {prior!r}")
-    return a, b
-
-
 def _sort_key(values: pd.Series):
     """Numbers in numeric order, anything else as text."""
     num = pd.to_numeric(values, errors="coerce")
@@ -215,7 +186,7 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str = "skew-score
     by = data.check_by(by)
     if interval not in METHODS:
         raise InputError(f"interval must be one of {', '.join(METHODS)}, got {interval!r}")
-    level, per, prior = _check_level(level), _check_per(per), _check_prior(prior)
+    level, per, prior = check_level(level), check_positive(per, "per"), check_beta_prior(prior)
     if not len(data.frame):
         raise InputError("no pool has a readout", data.source)
     groups, liks = [], {}

@@ -23,6 +23,7 @@ from scipy.optimize import minimize
 
 from ...decode.exact import EXACT_LIMIT
 from ...errors import InputError
+from ..checks import check_level
 from . import links, mstep
 from .design import design_matrix
 from .estep import ExactEStep
@@ -38,12 +39,7 @@ def _check(link, method, level, max_iter):
         raise InputError(f"link must be one of {', '.join(links.LINKS)}, got {link!r}")
     if method not in METHODS:
         raise InputError(f"method must be one of {', '.join(METHODS)}, got {method!r}")
-    try:
-        level = float(level)
-    except (TypeError, ValueError):
-        raise InputError(f"level must be a number strictly between 0 and 1, got {level!r}") from None
-    if not 0.0 < level < 1.0:
-        raise InputError(f"level must be strictly between 0 and 1, got {level!r}")
+    level = check_level(level)
     if isinstance(max_iter, bool) or not isinstance(max_iter, (int, np.integer)) or max_iter < 1:
         raise InputError(f"max_iter must be a whole number >= 1, got {max_iter!r}")
     return level
