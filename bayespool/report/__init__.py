@@ -24,10 +24,14 @@ DEFAULT_TITLE = "bayespool run report"
 
 
 def build_report(run=None, assay=None, posterior=None, plan=None, calibration=None, title=None, *,
-                 created=None, notes=(), file_name=None, prevalence=None) -> str:
+                 created=None, notes=(), file_name=None, controls=None, worklist=None,
+                 prevalence=None) -> str:
     """The report as an HTML string. ``created`` (datetime or text) defaults to now, in UTC;
-    ``notes`` are extra lines for the run summary (e.g. that the data is invented);
-    ``prevalence`` is a :class:`bayespool.surveillance.PrevalenceEstimates` (estimates by group)."""
+    ``notes`` are extra lines for the run summary (e.g. that the data is invented); ``controls``
+    (a :class:`bayespool.controls.ControlCheck`) adds the control status per plate, ``worklist``
+    (a :class:`bayespool.worklist.Worklist`) the destination plate map; ``prevalence`` (a
+    :class:`bayespool.surveillance.PrevalenceEstimates`) the estimates by group."""
+    from .bench import controls_section, destinations_section
     from .calibration import calibration_section, observed_points
     from .calls import calls_section, map_section
     from .groups import groups_section
@@ -36,9 +40,9 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     from .positives import positives_section
     from .summary import assay_section, decoder_section, run_section
 
-    if all(x is None for x in (run, assay, posterior, plan, calibration, prevalence)):
+    if all(x is None for x in (run, assay, posterior, plan, calibration, worklist, prevalence)):
         raise ValueError("nothing to report: give at least one of run, assay, posterior, plan, "
-                         "calibration, prevalence")
+                         "calibration, worklist, prevalence")
     if run is not None and posterior is not None and posterior.n_samples != run.n_samples:
         raise ValueError(f"the posterior has {posterior.n_samples} specimens but the run has "
                          f"{run.n_samples}")
@@ -56,6 +60,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     if prevalence is not None:
         from .prevalence import prevalence_section
         add("prevalence", "Prevalence", prevalence_section(prevalence))
+    add("controls", "Controls", controls_section(controls))
     if posterior is not None:
         add("decoder", "Decoder", decoder_section(posterior, run))
         mapped = map_section(posterior, run)
@@ -66,6 +71,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         add("positives", "Positives", positives_section(posterior))
     if plan is not None:
         add("plan", "Next pools", plan_section(plan, posterior))
+    add("destinations", "Destination plates", destinations_section(worklist))
     if assay is not None:
         add("assay", "Assay", assay_section(assay, run, points))
     if calibration is not None:
