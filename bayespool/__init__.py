@@ -22,6 +22,8 @@ _EXPORTS = {
     "ValidationData": "bayespool.calibration", "Design": "bayespool.design",
     "DesignProperties": "bayespool.design", "DorfmanOptimum": "bayespool.design",
     "Simulation": "bayespool.simulation", "Sweep": "bayespool.simulation",
+    "estimate_prevalence": "bayespool.surveillance", "read_pools": "bayespool.surveillance",
+    "fit_regression": "bayespool.surveillance.regression",
     # errors
     "InputError": "bayespool.errors", "ImpossibleEvidenceError": "bayespool.errors",
 }
