@@ -12,11 +12,28 @@ import os
 import sys
 import warnings
 
-from .errors import InputError
+from .errors import ImpossibleEvidenceError, InputError
 
 CAUTION = ("Statistical decision support, not a diagnostic device: confirm results by the "
            "laboratory's validated procedure, local regulations and the responsible licensed "
            "professional.")
+
+
+# Library errors name the Python parameter; the command line shows the flag that sets it. Flags
+# that are not "--" + the parameter with "-" for "_" are listed here, in this one place.
+FLAGS = {
+    "n_draws": "--posterior-draws",
+    'gibbs_options["chains"]': "--chains",
+    'gibbs_options["max_sweeps"]': "--gibbs-sweeps",
+    'gibbs_options["prevalence_prior"]': "--prevalence-prior",
+    'fixed["specificity"]': "--fix specificity=VALUE",
+    "result_words": "--result-word",
+}
+
+
+def flag(parameter: str) -> str:
+    """The command-line flag that sets a library parameter."""
+    return FLAGS.get(parameter) or "--" + parameter.replace("_", "-")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -62,20 +79,34 @@ def _result_words(args, assay=None) -> dict:
     return words
 
 
-INPUT_OPTIONS = ("layout", "readouts", "samples", "assay", "validation", "controls")
+INPUT_OPTIONS = {"layout": "--layout", "readouts": "--readouts", "samples": "--samples",
+                 "assay": "--assay", "validation": "--validation", "assay_file": "ASSAY.toml",
+                 "pools": "--pools", "controls": "--controls"}
+
+
+def _inputs(args) -> dict:
+    """The command's input files as given: option -> path (a number for --samples is no file)."""
+    out = {}
+    for name, label in INPUT_OPTIONS.items():
+        value = getattr(args, name, None)
+        if isinstance(value, str) and not value.strip().isdigit():
+            out[label] = value
+    return out
+
+
+def _audit(args):
+    """The audit trail of this command (argv, version, seed, date, inputs' size and SHA-256)."""
+    from .audit import make_audit
+    return make_audit(_inputs(args), argv=getattr(args, "argv", None),
+                      seed=getattr(args, "seed", None))
 
 
 def _check_outputs(args, more: dict | None = None, **outputs) -> None:
     """Before any work: every output (option -> path, plus ``more``: description -> path) lies in
     an existing folder and is neither an input of the command nor another output."""
     from .io import check_outputs
-    inputs = {}
-    for name in INPUT_OPTIONS:
-        value = getattr(args, name, None)
-        if isinstance(value, str) and not value.strip().isdigit():
-            inputs[f"--{name}"] = value
     named = {f"--{k.replace('_', '-')}": v for k, v in outputs.items()}
-    check_outputs({**named, **(more or {})}, inputs)
+    check_outputs({**named, **(more or {})}, _inputs(args))
 
 
 def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) -> None:
@@ -117,7 +148,9 @@ def _load_inputs(args):
 
 
 def _note(args, text: str) -> None:
-    print(f"bayespool {args.command}: note: {text}", file=sys.stderr)
+    """A note for stderr, printed when the command succeeds: input that turns out to be bad gets
+    its one error line and nothing else."""
+    args.pending_notes.append(f"bayespool {args.command}: note: {text}")
 
 
 def _add_worklist_options(p) -> None:
@@ -179,12 +212,9 @@ def _run_assay(args):
     from .assay import Assay, sensitivity_table
     plot = args.plot
     if plot:
-        from .io import check_output_path
-        check_output_path(plot)
+        _check_outputs(args, plot=plot)
         if not plot.lower().endswith((".svg", ".png")):
             raise InputError(f"--plot {plot!r}: the file name must end in .svg or .png")
-        if os.path.abspath(plot) == os.path.abspath(args.assay_file):
-            raise InputError("--plot must not overwrite the assay file")
     assay = Assay.read(args.assay_file)
     table = sensitivity_table(assay, args.pool_sizes)
     if plot:
@@ -278,10 +308,11 @@ def _print_gibbs(post) -> None:
 
 
 def _run_decode(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import write_frame
     _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
+    audit = _audit(args) if args.report or args.json else None
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
                   positive_above=args.positive_above, seed=args.seed, damping=args.damping,
                   tolerance=args.tolerance, max_sweeps=args.max_sweeps,
@@ -293,11 +324,13 @@ def _run_decode(args):
     write_frame(post.to_frame(), args.out)
     if args.report:
         from .report import write_report
-        write_report(args.report, run=run, assay=assay, posterior=post, controls=check)
+        write_report(args.report, run=run, assay=assay, posterior=post, controls=check,
+                     audit=audit)
     for w in post.warnings + (check.messages if check is not None else []):
         _note(args, w)
     if args.json:
         summary = post.summary()
+        summary["audit"] = audit.to_dict()
         summary.update({"pools": run.n_pools, "readouts": run.n_readouts, "out": args.out,
                         "assay": assay.describe()})
         if check is not None:
@@ -395,6 +428,10 @@ def _add_design(sub):
     p.add_argument("--fill", choices=("columns", "rows"),
                    help="dorfman on plates (samples file with plate and well): pool neighbouring "
                    "wells down the columns (A1, B1, ...; default) or along the rows (A1, A2, ...)")
+    p.add_argument("--by-risk", action="store_true",
+                   help="dorfman: pool specimens of similar prior (samples file with a prior "
+                   "column, e.g. from bayespool regress --priors); without --pool-size, sizes up "
+                   "to --max-pool-size with the fewest expected tests")
     p.add_argument("--rows", type=int, metavar="R",
                    help="array: rows per grid (default 8 x 12, or near-square for few specimens; "
                    "on plates, the plate's own rows and columns, or R x C tiles laid on it)")
@@ -429,7 +466,7 @@ def _add_design(sub):
 
 def _design_options(args) -> dict:
     if args.scheme == "dorfman":
-        return {"pool_size": args.pool_size, "fill": args.fill}
+        return {"pool_size": args.pool_size, "fill": args.fill, "by_risk": args.by_risk}
     if args.scheme == "array":
         return {"rows": args.rows, "cols": args.cols}
     if args.scheme == "kautz-singleton":
@@ -443,6 +480,8 @@ def _design_options(args) -> dict:
 def _run_design(args):
     from .design import make_design, optimal_dorfman
     from .io import write_frame
+    if args.by_risk and args.scheme != "dorfman":
+        raise InputError("--by-risk is for --scheme dorfman")
     _check_outputs(args, out=args.out, worklist=args.worklist)
     summary = {}
     if args.optimize:
@@ -454,7 +493,7 @@ def _run_design(args):
         if args.assay:
             from .assay import Assay
             assay = Assay.read(args.assay)
-        opt = optimal_dorfman(args.prevalence, assay, args.max_pool_size)
+        opt = optimal_dorfman(args.prevalence, assay, max_pool_size=args.max_pool_size)
         summary["optimum"] = opt.to_dict()
         summary["optimum"]["assay"] = assay.describe() if assay else "error-free"
         if not args.json:
@@ -480,6 +519,7 @@ def _run_design(args):
     if args.json:
         summary.update(design.properties.to_dict())
         summary["out"] = args.out
+        summary["audit"] = _audit(args).to_dict()
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
         print(json.dumps(_json_ready(summary), indent=2))
@@ -557,11 +597,10 @@ def _add_simulate(sub):
 
 
 def _run_simulate(args):
-    from .design.base import check_count
     from .io import write_frame
-    from .run import check_prevalence
-    from .simulate import simulate, sweep
-    from .simulate.protocols import accepted_options, make_protocol
+    from .validation import check_count, check_open_probability
+    from .simulation import simulate, sweep
+    from .simulation.protocols import accepted_options, make_protocol
     _check_outputs(args, out=args.out)
     prevs, sizes = args.prevalence, args.pool_size
     accepted = accepted_options(args.scheme)  # an unknown scheme fails here, before any work
@@ -576,32 +615,35 @@ def _run_simulate(args):
     for k in sizes or [None]:
         make_protocol(args.scheme, pool_size=k, **options)  # checks the options before any work
     for p in prevs or []:
-        check_prevalence(p)
-    check_count(args.runs, "--runs")
+        check_open_probability(p, "prevalence")
+    check_count(args.runs, "runs")
     from .design.specimens import specimens
     args.samples = specimens(args.samples)
     assay = _read_assay_or_default(args)
     progress = sys.stderr.isatty()
     if (prevs is None or len(prevs) == 1) and (sizes is None or len(sizes) == 1):
-        sim = simulate(args.scheme, args.samples, prevs[0] if prevs else None, assay,
+        sim = simulate(args.scheme, args.samples, prevalence=prevs[0] if prevs else None, assay=assay,
                        runs=args.runs, seed=args.seed, progress=progress,
                        pool_size=sizes[0] if sizes else None, **options)
         if args.out:
-            from .simulate.simulator import Sweep
+            from .simulation.simulator import Sweep
             write_frame(Sweep([sim]).table, args.out)
         if args.json:
-            print(json.dumps(_json_ready(sim.to_dict()), indent=2))
+            print(json.dumps(_json_ready({**sim.to_dict(), "audit": _audit(args).to_dict()}),
+                             indent=2))
         else:
             _print_simulation(sim, sim.characteristics.table())
     else:
-        result = sweep(args.scheme, args.samples, prevs, sizes if sizes and len(sizes) > 1
-                       else None, assay, runs=args.runs, seed=args.seed, progress=progress,
+        result = sweep(args.scheme, args.samples, prevalences=prevs,
+                       pool_sizes=sizes if sizes and len(sizes) > 1 else None, assay=assay,
+                       runs=args.runs, seed=args.seed, progress=progress,
                        **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}), **options)
         table = result.table
         if args.out:
             write_frame(table, args.out)
         if args.json:
-            print(json.dumps(_json_ready({"points": result.to_dict()}), indent=2))
+            print(json.dumps(_json_ready({"points": result.to_dict(),
+                                          "audit": _audit(args).to_dict()}), indent=2))
         else:
             _print_sweep(result, table)
     if args.out and not args.json:
@@ -641,8 +683,16 @@ LABELS = {"tests_per_sample": "tests per specimen", "sensitivity": "sensitivity"
           "draws_per_sample": "draws per specimen"}
 
 
+def _param_text(value) -> str:
+    """A protocol parameter for people: ``none`` rather than Python's None."""
+    if value is None:
+        return "none"
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
 def _print_simulation(sim, table) -> None:
-    params = ", ".join(f"{k} {v}" for k, v in sim.parameters.items())
+    params = ", ".join(f"{k.replace('_', ' ')} {_param_text(v)}"
+                       for k, v in sim.parameters.items())
     c = sim.characteristics
     prev = f"prevalence {sim.prevalence:g}" if sim.prevalence is not None else "per-specimen priors"
     print(f"{sim.scheme}" + (f" ({params})" if params else "") + f", {c.specimens} specimens, "
@@ -732,14 +782,33 @@ def _add_calibrate(sub):
     p.add_argument("--allow-unidentified", action="store_true",
                    help="past runs: write the fit even when the data cannot identify it (it is "
                    "marked so in the file); without this such a fit is refused with the reason")
+    p.add_argument("--ct-cutoff", type=float, default=40.0, metavar="CT",
+                   help="validation with a ct column: the run's Ct cutoff (default: %(default)s)")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
 
 
+def _run_calibrate_ct(args, table):
+    """A validation file with Cts: fit the [ct] load model (bayespool.calibration.ct_fit)."""
+    from .calibration.ct_fit import calibrate_ct
+    result = calibrate_ct(table, cutoff=args.ct_cutoff)
+    result.assay.write(args.out)
+    if args.json:
+        summary = result.summary()
+        summary["out"] = args.out
+        print(json.dumps(summary, indent=2))
+    else:
+        print(result.text())
+        print(f"wrote {args.out} (the Ct fit writes no sensitivity plot; `bayespool assay "
+              f"{args.out} --plot FILE` draws the implied curve)")
+        print(CAUTION)
+    return 0
+
+
 def _run_calibrate(args):
-    from .calibrate import calibrate_runs, calibrate_validation
-    from .calibrate.plot import figure, plot_paths, write_plots
-    from .calibrate.validation import ValidationData
+    from .calibration import calibrate_runs, calibrate_validation
+    from .calibration.plot import figure, plot_paths, write_plots
+    from .calibration.validation import ValidationData
     from .run import Run
     if args.validation and (args.layout or args.readouts or args.samples):
         raise InputError("give either --validation or --layout/--readouts, not both")
@@ -760,6 +829,11 @@ def _run_calibrate(args):
     run = None
     words = _result_words(args)
     if args.validation:
+        from .io import read_table
+        table = read_table(args.validation, ["pool_size", "positives", "result"], "validation")
+        if "ct" in table.header:
+            return _run_calibrate_ct(args, table)
+    if args.validation:
         data = ValidationData.read(args.validation, words=words)
         result = calibrate_validation(data, args.model, fixed, level=args.level,
                                       intervals=args.intervals, gof_draws=args.gof_draws,
@@ -770,6 +844,7 @@ def _run_calibrate(args):
                                 intervals=args.intervals)
         if not args.allow_unidentified:
             result.check_identified()
+    audit = _audit(args) if args.report or args.json else None
     fig = figure(result) if plots else None
     result.assay.write(args.out)
     if plots:
@@ -778,13 +853,14 @@ def _run_calibrate(args):
     if args.report:
         from .report import write_report
         write_report(args.report, run=run if not args.validation else None, assay=result.assay,
-                     calibration=result, title="bayespool calibration report")
+                     calibration=result, title="bayespool calibration report", audit=audit)
         written.append(args.report)
     if args.json:
         for w in result.warnings:
             _note(args, w)
         summary = result.summary()
         summary["out"] = args.out
+        summary["audit"] = audit.to_dict()
         summary["plots"] = {k: str(v) for k, v in plots.items()}
         if args.report:
             summary["report"] = args.report
@@ -799,7 +875,7 @@ def _run_calibrate(args):
 # ---- plan
 def _add_plan(sub):
     from .defaults import METHODS
-    from .plan import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
+    from .planning import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
     p = sub.add_parser("plan", help="the next most informative pools for the undecided samples",
                        description="Choose the next batch of pools by expected information gain "
                        "about the undecided samples, given the readouts so far. An empty layout "
@@ -835,20 +911,21 @@ def _add_plan(sub):
 
 
 def _run_plan(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import write_frame
-    from .plan import plan
+    from .planning import plan
     report = args.report
     _check_outputs(args, out=args.out, report=report, worklist=args.worklist)
     if args.worklist and not args.samples:
         raise InputError("--worklist needs --samples with the specimens' plate and well")
     run, assay = _load_inputs(args)
+    audit = _audit(args) if report or args.json else None
     if run.n_samples == 0:
         raise InputError("no samples: the layout is empty and no --samples file lists any",
                          args.layout)
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
                   positive_above=args.positive_above, seed=args.seed)
-    result = plan(run, assay, post, tests=args.tests, max_pool_size=args.max_pool_size,
+    result = plan(run, assay, posterior=post, tests=args.tests, max_pool_size=args.max_pool_size,
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked)
     frame = result.to_frame()
@@ -862,13 +939,14 @@ def _run_plan(args):
     if report:
         from .report import write_report
         write_report(report, run=run, assay=assay, posterior=post, plan=frame,
-                     controls=args.control_check, worklist=wl)
+                     controls=args.control_check, worklist=wl, audit=audit)
     check = args.control_check
     for w in post.warnings + result.notes + (check.messages if check is not None else []):
         _note(args, w)
     if args.json:
         summary = result.summary()
-        summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe()})
+        summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe(),
+                        "audit": audit.to_dict()})
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
         if check is not None:
@@ -890,6 +968,197 @@ def _run_plan(args):
     return 0
 
 
+# ---- prevalence
+def _pair(text: str) -> tuple[float, float]:
+    values = _float_list(text)
+    if len(values) != 2:
+        raise argparse.ArgumentTypeError(f"expected two numbers A,B, got {text!r}")
+    return values[0], values[1]
+
+
+def _names(text: str) -> list[str]:
+    return [c.strip() for c in text.split(",") if c.strip()]
+
+
+def _with_flags(exc: InputError, flags: dict) -> InputError:
+    """A library error that begins with a Python parameter's name, reworded with the flag."""
+    for name, flag in flags.items():
+        if exc.message.startswith((name + " ", name + ":")):
+            return InputError(flag + exc.message[len(name):], exc.file, exc.line, exc.column)
+    return exc
+
+
+def _add_prevalence(sub):
+    from .defaults import PREVALENCE_INTERVALS as INTERVALS
+    p = sub.add_parser("prevalence", help="prevalence by group from pooled readouts (surveillance)",
+                       description="Estimate the prevalence (for example an infection rate per "
+                       "1000) by group from pools of any sizes, with an interval, the "
+                       "bias-corrected estimate and the minimum infection rate; without --assay "
+                       "the test is taken as perfect. Estimates describe the data and the assay "
+                       "model given. " + CAUTION)
+    src = p.add_argument_group("data (one of)")
+    src.add_argument("--pools", metavar="CSV", help="pool,size,result[,group columns]: one row "
+                     "per readout; several rows of one pool are replicates")
+    src.add_argument("--layout", metavar="CSV", help="a run's pool,sample memberships (sizes)")
+    src.add_argument("--readouts", metavar="CSV", help="the run's pool,result readouts")
+    src.add_argument("--samples", metavar="CSV", help="the run's samples (group columns)")
+    p.add_argument("--assay", metavar="TOML", help="assay model: Se(k, d) and Sp enter the "
+                   "likelihood (default: a perfect test, as the classic estimators assume)")
+    p.add_argument("--by", type=_names, default=[], metavar="COLS",
+                   help="grouping columns, comma-separated (e.g. site,week)")
+    p.add_argument("--interval", choices=INTERVALS, default="skew-score",
+                   help="interval method (default: %(default)s, the skewness-corrected score "
+                   "interval; exact needs equal pool sizes)")
+    p.add_argument("--level", type=_probability, default=0.95, metavar="L",
+                   help="confidence level (default: %(default)s)")
+    p.add_argument("--per", type=_probability, default=1.0, metavar="N",
+                   help="estimates per N specimens, e.g. 1000 (default: %(default)s)")
+    p.add_argument("--prior", type=_pair, default=(1.0, 1.0), metavar="A,B",
+                   help="Beta(A, B) prior for --interval bayes (default: 1,1)")
+    p.add_argument("--compare", type=_names, default=None, metavar="A,B",
+                   help="estimate the difference between groups A and B (automatic when --by "
+                   "names one column with exactly two values)")
+    p.add_argument("--out", metavar="CSV", help="write the estimates table")
+    p.add_argument("--report", metavar="HTML", help="write an offline HTML report")
+    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    return p
+
+
+PREVALENCE_FLAGS = {"level": "--level", "per": "--per", "prior": "--prior",
+                    "compare": "--compare", "interval": "--interval", "by": "--by"}
+
+
+def _run_prevalence(args):
+    from .io import write_frame
+    from .surveillance import estimate_prevalence, pools_from_run, read_pools
+    if args.pools and (args.layout or args.readouts or args.samples):
+        raise InputError("give either --pools or --layout/--readouts, not both")
+    if not args.pools and not (args.layout and args.readouts):
+        raise InputError("give --pools, or --layout and --readouts of a run")
+    _check_outputs(args, out=args.out, report=args.report)
+    inputs = [args.pools, args.layout, args.readouts, args.samples, args.assay]
+    assay = None
+    if args.assay:
+        from .assay import Assay
+        assay = Assay.read(args.assay)
+    if args.pools:
+        data = read_pools(args.pools)
+    else:
+        from .run import Run
+        data = pools_from_run(Run.read(args.layout, args.readouts, args.samples))
+    try:
+        result = estimate_prevalence(data, assay, by=args.by, interval=args.interval,
+                                     level=args.level, per=args.per, prior=args.prior,
+                                     compare=args.compare)
+    except InputError as exc:
+        raise _with_flags(exc, PREVALENCE_FLAGS) from None
+    if args.out:
+        write_frame(result.to_frame().reset_index(), args.out)
+    audit = _audit(args) if args.report or args.json else None
+    if args.report:
+        from .report import write_report
+        write_report(args.report, prevalence=result, title="bayespool prevalence report",
+                     notes=[f"input: {v}" for v in inputs if v], audit=audit)
+    if args.json:
+        summary = result.summary()
+        summary["audit"] = audit.to_dict()
+        summary.update({k: v for k, v in (("out", args.out), ("report", args.report)) if v})
+        print(json.dumps(summary, indent=2))
+    else:
+        print(result)
+        written = [x for x in (args.out, args.report) if x]
+        if written:
+            print(f"wrote {' and '.join(written)}")
+        print(CAUTION)
+    return 0
+
+
+# ---- regress
+def _add_regress(sub):
+    from .defaults import REGRESSION_LINKS
+    p = sub.add_parser("regress", help="individual risk on covariates from pooled readouts "
+                       "(group testing regression); fitted risks as priors",
+                       description="Fit each specimen's risk on its covariates (columns of the "
+                       "samples file) from pooled readouts of any layout, by maximum likelihood "
+                       "on the exact marginal likelihood of the readouts (EM over the latent "
+                       "statuses), or Monte Carlo EM with the Gibbs sampler for large linked "
+                       "groups. Without --assay the test is taken as perfect. Estimates describe "
+                       "the data and the assay model given. " + CAUTION)
+    p.add_argument("--layout", required=True, metavar="CSV", help="pool,sample memberships")
+    p.add_argument("--readouts", required=True, metavar="CSV", help="pool,result readouts "
+                   "(individual follow-up tests are pools of one)")
+    p.add_argument("--samples", required=True, metavar="CSV",
+                   help="sample plus the covariate columns the formula uses")
+    p.add_argument("--assay", metavar="TOML", help="assay model (default: a perfect test)")
+    p.add_argument("--formula", required=True, metavar="F",
+                   help="covariates in formula syntax, e.g. \"age + C(site)\"")
+    p.add_argument("--link", choices=REGRESSION_LINKS, default="logit",
+                   help="link of risk to covariates (default: %(default)s)")
+    p.add_argument("--method", choices=("auto", "exact", "gibbs"), default="auto",
+                   help="E-step: exact enumeration of linked groups, or the Gibbs sampler "
+                   "(default: %(default)s, exact when every linked group has at most 22 samples)")
+    p.add_argument("--level", type=_probability, default=0.95, metavar="L",
+                   help="level of the coefficient intervals (default: %(default)s)")
+    p.add_argument("--seed", type=int, default=None, metavar="N",
+                   help="random seed of the Gibbs sampler (reproducible fits)")
+    p.add_argument("--out", metavar="CSV", help="write the coefficients: "
+                   "term,estimate,std_error,lower,upper")
+    p.add_argument("--priors", metavar="CSV", help="write the samples file with a prior column "
+                   "from the fitted risks (for decode, plan and design)")
+    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    return p
+
+
+REGRESS_FLAGS = {"formula": "--formula", "link": "--link", "method": "--method",
+                 "level": "--level", "max_iter": "--max-iter"}
+
+
+def _run_regress(args):
+    from .io import write_frame
+    from .run import Run
+    from .surveillance.regression import fit_regression
+    _check_outputs(args, out=args.out, priors=args.priors)
+    assay = None
+    if args.assay:
+        from .assay import Assay
+        assay = Assay.read(args.assay)
+    run = Run.read(args.layout, args.readouts, args.samples)
+    run.sources["assay"] = args.assay
+    if assay is None:
+        from .assay import PERFECT_ASSAY
+        assay = PERFECT_ASSAY
+    try:
+        fit = fit_regression(run, assay, formula=args.formula, link=args.link,
+                             method=args.method, level=args.level, seed=args.seed)
+    except InputError as exc:
+        if isinstance(exc, ImpossibleEvidenceError) and not args.assay:
+            raise InputError(exc.message + " (no --assay was given, so the test is taken as "
+                             "perfect; give the assay file)", exc.file, exc.line,
+                             exc.column) from None
+        raise _with_flags(exc, REGRESS_FLAGS) from None
+    if args.out:
+        write_frame(fit.coefficients(), args.out)
+    if args.priors:
+        write_frame(fit.priors_frame(), args.priors)
+    if not args.assay:
+        _note(args, "no --assay given: the test is taken as perfect (Se = Sp = 1)")
+    for n in fit.notes:
+        _note(args, n)
+    if args.json:
+        summary = fit.summary()
+        summary["audit"] = _audit(args).to_dict()
+        summary["assay"] = assay.describe() if args.assay else "perfect (Se = Sp = 1)"
+        summary.update({k: v for k, v in (("out", args.out), ("priors", args.priors)) if v})
+        print(json.dumps(summary, indent=2))
+    else:
+        print(fit)
+        written = [x for x in (args.out, args.priors) if x]
+        if written:
+            print(f"wrote {' and '.join(written)}")
+        print(CAUTION)
+    return 0
+
+
 COMMANDS = {
     "assay": (_add_assay, _run_assay),
     "decode": (_add_decode, _run_decode),
@@ -898,6 +1167,8 @@ COMMANDS = {
     "simulate": (_add_simulate, _run_simulate),
     "calibrate": (_add_calibrate, _run_calibrate),
     "plan": (_add_plan, _run_plan),
+    "prevalence": (_add_prevalence, _run_prevalence),
+    "regress": (_add_regress, _run_regress),
 }
 
 
@@ -915,16 +1186,21 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    args.argv = list(sys.argv[1:] if argv is None else argv)
     if args.command is None:
         parser.print_help()
         return 2
     _, run = COMMANDS[args.command]
+    args.pending_notes = []
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", UserWarning)
-            return run(args)
+            code = run(args)
+        for note in args.pending_notes:
+            print(note, file=sys.stderr)
+        return code
     except InputError as exc:
-        print(f"bayespool {args.command}: error: {exc}", file=sys.stderr)
+        print(f"bayespool {args.command}: error: {exc.renamed(flag)}", file=sys.stderr)
         return 2
     except OSError as exc:
         name = getattr(exc, "filename", None)

@@ -6,7 +6,6 @@ nothing is dense. Replicate readouts of a pool are folded into counts of positiv
 """
 from __future__ import annotations
 
-import math
 import warnings
 from dataclasses import dataclass, field
 
@@ -14,21 +13,10 @@ import numpy as np
 import pandas as pd
 
 from .defaults import PREVALENCE
-from .errors import InputError
 from .io import CodedTable, FrameTable, Table, read_id_table, read_table
 from .results import parse_results, skipped_note
+from .validation import check_open_probability
 from .wells import check_wells
-
-def check_prevalence(value, name: str = "--prevalence") -> float:
-    """A prevalence strictly between 0 and 1 (NaN and infinities refused)."""
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{name} must be a number strictly between 0 and 1, got {value!r}") from None
-    if not (0.0 < v < 1.0):
-        raise InputError(f"{name} must be strictly between 0 and 1, got {value!r}")
-    return v
-
 
 _COUNTING_SORT_FROM = 1 << 16  # pairs; below this a NumPy sort is as fast and needs no numba
 
@@ -149,7 +137,7 @@ class Run(PoolIncidence):
                    pool_ptr, pool_members, sample_ptr, sample_pools, npos, nneg)
 
     @classmethod
-    def read(cls, layout, readouts=None, samples=None, prevalence: float = PREVALENCE, *,
+    def read(cls, layout, readouts=None, samples=None, *, prevalence: float = PREVALENCE,
              result_words: dict | None = None) -> "Run":
         """Read and validate the layout, readouts and samples files (interface.md).
 
@@ -179,7 +167,7 @@ class Run(PoolIncidence):
     @classmethod
     def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence, *,
                     words: dict | None = None) -> "Run":
-        prevalence = check_prevalence(prevalence)
+        prevalence = check_open_probability(prevalence, "prevalence")
         # IDs are factorised once (a large plain file comes already coded); every later check
         # works on the integer codes
         if isinstance(lay, CodedTable):
@@ -267,7 +255,7 @@ class Run(PoolIncidence):
                     lines = ", ".join(map(str, rd.lines(odd[:10])))
                     more = f" and {len(odd) - 10} more" if len(odd) > 10 else ""
                     notes.append(f"{rd.path}: {len(odd)} negative readout(s) carry a Ct value "
-                                 f"(line{'s' if len(odd) > 1 else ''} {lines}{more}); they are "
+                                 f"({rd.unit}{'s' if len(odd) > 1 else ''} {lines}{more}); they are "
                                  "read as negative: check the result or the Ct")
                 ct_frame = pd.DataFrame({"pool": pidx[keep], "result": res[keep],
                                          "ct": vals[keep]})
@@ -288,7 +276,49 @@ class Run(PoolIncidence):
                    self.sample_ptr, self.sample_pools, npos, nneg, self.samples, self.readout_ct,
                    dict(self.sources), list(self.notes))
 
+    def sample_column(self, name: str) -> np.ndarray | None:
+        """A column of the samples file aligned with ``sample_ids`` (blank for specimens it does
+        not list), or None when the file or the column is absent."""
+        if self.samples is None or name not in self.samples.columns:
+            return None
+        out = np.full(self.n_samples, "", dtype=object)
+        idx = self.samples.index.to_numpy()
+        ok = (idx >= 0) & (idx < self.n_samples)
+        out[idx[ok]] = self.samples[name].astype(str).str.strip().to_numpy()[ok]
+        return out
+
     def layout_frame(self) -> pd.DataFrame:
         """The layout as a DataFrame (pool, sample), one row per membership."""
         owner = np.repeat(np.arange(self.n_pools), self.pool_size)
         return pd.DataFrame({"pool": self.pool_ids[owner], "sample": self.sample_ids[self.pool_members]})
+
+
+def read_run(layout, readouts=None, samples=None, *, prevalence: float = PREVALENCE,
+             result_words: dict | None = None) -> Run:
+    """Read a run from its files: the layout, the readouts and the optional samples file.
+
+    Parameters
+    ----------
+    layout : str or path-like
+        ``pool,sample`` memberships, one row each.
+    readouts : str or path-like, optional
+        ``pool,result[,ct]`` readouts; several rows of one pool are replicates. None (or a file
+        with a header only) means nothing is read yet.
+    samples : str or path-like, optional
+        ``sample[,prior,plate,well,...]``; specimens of the layout missing here take
+        ``prevalence``.
+    prevalence : float, keyword-only
+        Prior probability of specimens without a prior, strictly between 0 and 1.
+    result_words : dict, optional
+        A laboratory's own result words (word -> positive, negative or skip).
+
+    Returns
+    -------
+    Run
+
+    Raises
+    ------
+    InputError
+        A bad file (naming file, line and column) or a bad ``prevalence``.
+    """
+    return Run.read(layout, readouts, samples, prevalence=prevalence, result_words=result_words)

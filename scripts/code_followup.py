@@ -19,7 +19,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from bayespool.assay import Assay, ConstantSensitivity  # noqa: E402
 from bayespool.design import code_design  # noqa: E402
-from bayespool.simulate import simulate  # noqa: E402
+from bayespool.simulation import simulate  # noqa: E402
 
 COLUMNS = ("tests_per_sample", "sensitivity", "specificity", "rounds")
 
@@ -52,8 +52,8 @@ def main(argv=None) -> int:
         for k in sizes:
             for scheme in ("dorfman", "pool-then-code"):
                 start = time.perf_counter()
-                sim = simulate(scheme, args.samples, p, assay, runs=args.runs, seed=args.seed,
-                               pool_size=k)
+                sim = simulate(scheme, args.samples, prevalence=p, assay=assay, runs=args.runs,
+                               seed=args.seed, pool_size=k)
                 secs = time.perf_counter() - start
                 t = sim.characteristics.table().set_index("characteristic")
                 rows.append([f"{p:g}", str(k), str(code_design(k).n_pools), scheme,
