@@ -376,14 +376,44 @@ def _add_simulate(sub):
     p.add_argument("--seed", type=int, metavar="S", help="random seed (reproducible results)")
     p.add_argument("--out", metavar="CSV", help="also write the results table")
     p.add_argument("--json", action="store_true", help="print the results as JSON")
+    where = p.add_mutually_exclusive_group()
+    where.add_argument("--workers", type=int, metavar="N",
+                       help="play the cohorts on N local worker processes (a Dask LocalCluster); "
+                       "the numbers are the same as in-process")
+    where.add_argument("--scheduler", metavar="ADDRESS",
+                       help="play the cohorts on the Dask cluster whose scheduler is at ADDRESS "
+                       "(e.g. tcp://10.0.0.5:8786)")
     return p
 
 
+LONG_STUDY_SECONDS = 10.0  # studies forecast to take longer say so before they start
+
+
+def _announce_estimate(estimate) -> None:
+    if estimate.seconds >= LONG_STUDY_SECONDS:
+        print(f"bayespool simulate: {estimate.text()}", file=sys.stderr, flush=True)
+
+
 def _run_simulate(args):
+    from .simulate.engine import cluster_client
+    if args.workers is not None and args.workers < 1:
+        raise InputError(f"--workers must be at least 1, got {args.workers}")
+    _check_simulate(args)
+    with cluster_client(args.workers, args.scheduler) as client:
+        return _simulate_on(args, client)
+
+
+def _simulate_options(args) -> dict:
+    return {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
+            "negative_below": args.negative_below, "positive_above": args.positive_above,
+            "tests": args.tests, "method": args.method}
+
+
+def _check_simulate(args):
+    """Every option checked before any work (and before a cluster starts)."""
     from .design.base import check_count
-    from .io import check_output_path, write_frame
+    from .io import check_output_path
     from .run import check_prevalence
-    from .simulate import simulate, sweep
     from .simulate.protocols import accepted_options, make_protocol
     if args.out:
         check_output_path(args.out)
@@ -394,9 +424,7 @@ def _run_simulate(args):
         if value is not None and accepted is not None and option not in accepted:
             raise InputError(f"--{option.replace('_', '-')} does not apply to the "
                              f"{args.scheme} scheme")
-    options = {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
-               "negative_below": args.negative_below, "positive_above": args.positive_above,
-               "tests": args.tests, "method": args.method}
+    options = _simulate_options(args)
     for k in sizes or [None]:
         make_protocol(args.scheme, pool_size=k, **options)  # checks the options before any work
     for p in prevs or []:
@@ -404,12 +432,20 @@ def _run_simulate(args):
     check_count(args.runs, "--runs")
     from .design.specimens import specimens
     args.samples = specimens(args.samples)
-    assay = _read_assay_or_default(args)
+    args.assay_model = _read_assay_or_default(args)
+
+
+def _simulate_on(args, client):
+    from .io import write_frame
+    from .simulate import simulate, sweep
+    prevs, sizes, assay = args.prevalence, args.pool_size, args.assay_model
+    options = _simulate_options(args)
     progress = sys.stderr.isatty()
+    where = {"client": client, "on_estimate": _announce_estimate}
     if (prevs is None or len(prevs) == 1) and (sizes is None or len(sizes) == 1):
         sim = simulate(args.scheme, args.samples, prevs[0] if prevs else None, assay,
                        runs=args.runs, seed=args.seed, progress=progress,
-                       pool_size=sizes[0] if sizes else None, **options)
+                       pool_size=sizes[0] if sizes else None, **where, **options)
         if args.out:
             from .simulate.simulator import Sweep
             write_frame(Sweep([sim]).table, args.out)
@@ -420,7 +456,8 @@ def _run_simulate(args):
     else:
         result = sweep(args.scheme, args.samples, prevs, sizes if sizes and len(sizes) > 1
                        else None, assay, runs=args.runs, seed=args.seed, progress=progress,
-                       **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}), **options)
+                       **where, **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}),
+                       **options)
         table = result.table
         if args.out:
             write_frame(table, args.out)

@@ -1,9 +1,11 @@
 """Closed-loop simulation: draw cohorts, play a protocol through the assay model, summarise.
 
-Statuses come from one random stream and readouts from another (both spawned from ``seed``), so a
-protocol's batch path and its per-run path see the same cohorts. Protocols with a ``run_batch`` method
-(vectorised over runs) use it unless ``batch=False``; the others are played one cohort at a time
-through a :class:`~bayespool.simulate.protocol.Tester`.
+Every cohort has its own two streams (statuses, readouts) spawned from ``seed``
+(:mod:`.streams`), so a protocol's batch path and its per-run path see the same cohorts and draw the
+same readouts, and a study gives the same numbers in-process, on N local workers or on a remote Dask
+cluster (:mod:`.engine`). Protocols with a ``run_batch`` method (vectorised over runs) use it unless
+``batch=False``; the others are played one cohort at a time through a
+:class:`~bayespool.simulate.protocol.Tester`.
 """
 from __future__ import annotations
 
@@ -17,10 +19,13 @@ from ..assay import DEFAULT_ASSAY, Assay
 from ..design.base import check_count
 from ..errors import InputError
 from ..run import check_prevalence
-from .characteristics import ORDER, OperatingCharacteristics, summarise_runs
+from .characteristics import ORDER, OperatingCharacteristics
 from ..design.specimens import specimens
-from .cohort import Cohort, blocks, make_cohort
-from .protocol import Protocol, Tester
+from .cells import Cell
+from .cohort import Cohort, make_cohort
+from .engine import run_blocks
+from .protocol import Protocol
+from .streams import as_seed_sequence
 from .protocols import accepted_options, make_protocol
 
 
@@ -50,61 +55,14 @@ class Simulation:
         return out
 
 
-def _progress_bar(progress, total: int):
-    """A tqdm bar on stderr when asked; ``progress`` may be an existing bar to advance."""
-    if progress is None or progress is False:
-        return None, False
-    if hasattr(progress, "update"):
-        return progress, False
-    import sys
-
-    from tqdm import tqdm
-    return tqdm(total=total, unit="run", file=sys.stderr, leave=False), True
-
-
-def simulate(scheme, samples, prevalence: float | None = None, assay: Assay | None = None,
-             runs: int = 1000, seed=None, progress=False, batch: bool = True,
-             **options) -> Simulation:
-    """Simulate ``runs`` cohorts of ``samples`` (N, a samples file or Specimens) under a protocol.
-
-    ``scheme`` is a registered name (see :data:`bayespool.simulate.protocols.PROTOCOLS`) or a
-    :class:`Protocol`; ``options`` go to its constructor (``pool_size``, ``rows``, ``cols``, ...).
-    """
+def _cell(scheme, cohort: Cohort, assay: Assay, runs: int, seq, batch: bool, options,
+          setting=None) -> Cell:
     protocol = scheme if isinstance(scheme, Protocol) else make_protocol(scheme, **options)
-    cohort = samples if isinstance(samples, Cohort) else make_cohort(samples, prevalence)
-    assay = DEFAULT_ASSAY if assay is None else assay
-    runs = check_count(runs, "--runs")
-    seq = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
-    cohort_rng, test_rng = (np.random.default_rng(s) for s in seq.spawn(2))
-    bar, own_bar = _progress_bar(progress, runs)
-    frames = []
-    try:
-        for size in blocks(runs, cohort.n):
-            truth = cohort.draw(size, cohort_rng)
-            if batch and hasattr(protocol, "run_batch"):
-                out = protocol.run_batch(truth, assay, test_rng)
-                frames.append(summarise_runs(truth, out.calls, out.tests, out.rounds, out.draws))
-            else:
-                calls = np.empty_like(truth)
-                draws = np.empty(truth.shape, dtype=np.int64)
-                tests = np.empty(size, dtype=np.int64)
-                rounds = np.empty(size, dtype=np.int64)
-                for r in range(size):
-                    o = protocol.run(Tester(truth[r], assay, test_rng), cohort.prior)
-                    calls[r], draws[r], tests[r], rounds[r] = o.calls, o.draws, o.tests, o.rounds
-                    if bar is not None and size > 1:
-                        bar.update(1)
-                if bar is not None and size == 1:
-                    bar.update(1)
-                frames.append(summarise_runs(truth, calls, tests, rounds, draws))
-                continue
-            if bar is not None:
-                bar.update(size)
-    finally:
-        if own_bar:
-            bar.close()
-    frame = pd.concat(frames, ignore_index=True)
-    frame.insert(0, "run", np.arange(1, len(frame) + 1))
+    return Cell(protocol, cohort, assay, runs, seq, batch, dict(setting or {}))
+
+
+def _simulation(cell: Cell, frame: pd.DataFrame, seed) -> Simulation:
+    protocol, cohort, assay = cell.protocol, cell.cohort, cell.assay
     prev = cohort.prevalence
     expected = protocol.expected(cohort.n, prev, assay) if prev is not None else None
     notes = []
@@ -113,6 +71,34 @@ def simulate(scheme, samples, prevalence: float | None = None, assay: Assay | No
     return Simulation(protocol.name, protocol.parameters(), assay, prev,
                       OperatingCharacteristics.from_runs(frame), frame, expected,
                       seed if isinstance(seed, (int, np.integer)) else None, notes)
+
+
+def simulate(scheme, samples, prevalence: float | None = None, assay: Assay | None = None,
+             runs: int = 1000, seed=None, progress=False, batch: bool = True, *, client=None,
+             on_estimate=None, **options) -> Simulation:
+    """Simulate ``runs`` cohorts of ``samples`` (N, a samples file or Specimens) under a protocol.
+
+    Parameters
+    ----------
+    scheme : str or Protocol
+        A registered name (see :data:`bayespool.simulate.protocols.PROTOCOLS`) or a protocol
+        object; ``options`` go to its constructor (``pool_size``, ``rows``, ``cols``, ...).
+    seed : int, SeedSequence or None
+        Cohort ``r`` draws from ``SeedSequence(seed).spawn(runs)[r]``, so the numbers are the same
+        wherever and in whatever blocks the cohorts run.
+    client : dask.distributed.Client, optional
+        Play the cohorts as tasks on this Dask cluster (default: in this process).
+    progress : bool
+        A bar on stderr (cohorts done of total, time left).
+    on_estimate : callable, optional
+        Called with the pilot's :class:`~bayespool.simulate.engine.Estimate` before the study.
+    """
+    cohort = samples if isinstance(samples, Cohort) else make_cohort(samples, prevalence)
+    assay = DEFAULT_ASSAY if assay is None else assay
+    runs = check_count(runs, "--runs")
+    cell = _cell(scheme, cohort, assay, runs, as_seed_sequence(seed), batch, options)
+    [frame] = run_blocks([cell], client=client, progress=progress, on_estimate=on_estimate)
+    return _simulation(cell, frame, seed)
 
 
 @dataclass
@@ -141,10 +127,13 @@ class Sweep:
 
 
 def sweep(scheme: str, samples, prevalences=None, pool_sizes=None, assay: Assay | None = None,
-          runs: int = 1000, seed=None, progress=False, **options) -> Sweep:
+          runs: int = 1000, seed=None, progress=False, *, client=None, on_estimate=None,
+          **options) -> Sweep:
     """Simulate every combination of ``prevalences`` and ``pool_sizes`` (either may be None).
 
-    Each point gets its own random streams spawned from ``seed`` (reproducible point by point).
+    Each point is a cell of the study with its own seed spawned from ``seed`` (point ``j`` gets
+    ``SeedSequence(seed).spawn(points)[j]``); all cells' cohorts run as one batch of tasks, on
+    ``client`` when given (see :func:`simulate`).
     """
     prevs = [None] if prevalences is None else [check_prevalence(p) for p in prevalences]
     sizes = [options.pop("pool_size", None)] if pool_sizes is None else \
@@ -159,16 +148,8 @@ def sweep(scheme: str, samples, prevalences=None, pool_sizes=None, assay: Assay 
                          "prevalences would change nothing")
     points = list(itertools.product(prevs, sizes))
     runs = check_count(runs, "--runs")
-    seeds = np.random.SeedSequence(seed).spawn(len(points))
-    bar, own_bar = _progress_bar(progress, runs * len(points))
-    results = []
-    try:
-        for (p, k), s in zip(points, seeds):
-            sim = simulate(scheme, spec, prevalence=p, assay=assay, runs=runs, seed=s,
-                           progress=bar if bar is not None else False, pool_size=k, **options)
-            sim.seed = seed if isinstance(seed, (int, np.integer)) else None
-            results.append(sim)
-    finally:
-        if own_bar:
-            bar.close()
-    return Sweep(results)
+    seeds = as_seed_sequence(seed).spawn(len(points))
+    cells = [_cell(scheme, make_cohort(spec, p), DEFAULT_ASSAY if assay is None else assay, runs,
+                   s, True, {**options, "pool_size": k}) for (p, k), s in zip(points, seeds)]
+    frames = run_blocks(cells, client=client, progress=progress, on_estimate=on_estimate)
+    return Sweep([_simulation(c, f, seed) for c, f in zip(cells, frames)])
