@@ -42,6 +42,7 @@ class Simulation:
     expected: dict | None = None
     seed: int | None = None
     notes: list = field(default_factory=list)
+    setting: dict = field(default_factory=dict)  # what a study sweeps besides the parameters
 
     def to_dict(self) -> dict:
         out = {"scheme": self.scheme, **self.parameters, "prevalence": self.prevalence,
@@ -70,7 +71,8 @@ def _simulation(cell: Cell, frame: pd.DataFrame, seed) -> Simulation:
         notes.append("closed forms need one prevalence for all specimens: not shown")
     return Simulation(protocol.name, protocol.parameters(), assay, prev,
                       OperatingCharacteristics.from_runs(frame), frame, expected,
-                      seed if isinstance(seed, (int, np.integer)) else None, notes)
+                      seed if isinstance(seed, (int, np.integer)) else None, notes,
+                      dict(cell.setting))
 
 
 def simulate(scheme, samples, prevalence: float | None = None, assay: Assay | None = None,
@@ -103,15 +105,19 @@ def simulate(scheme, samples, prevalence: float | None = None, assay: Assay | No
 
 @dataclass
 class Sweep:
-    """Simulations over a grid of prevalences and/or pool sizes, and their table."""
+    """A study: simulations over schemes and settings (one cell each), and their table."""
 
     results: list
 
     @property
     def table(self) -> pd.DataFrame:
+        """One row per cell: scheme, setting (prevalence, assay, thresholds), the protocol's
+        parameters, each characteristic with its Monte Carlo standard error (``_se``), and the
+        closed form where one exists (``expected_``)."""
         rows = []
         for sim in self.results:
-            row = {"prevalence": sim.prevalence, **sim.parameters}
+            row = {"scheme": sim.scheme, "prevalence": sim.prevalence, **sim.setting,
+                   **sim.parameters}
             c = sim.characteristics
             for k in ORDER:
                 row[k] = c.estimate[k]
@@ -123,33 +129,94 @@ class Sweep:
         return pd.DataFrame(rows)
 
     def to_dict(self) -> list:
-        return [s.to_dict() for s in self.results]
+        return [{**s.to_dict(), **s.setting} for s in self.results]
 
 
-def sweep(scheme: str, samples, prevalences=None, pool_sizes=None, assay: Assay | None = None,
-          runs: int = 1000, seed=None, progress=False, *, client=None, on_estimate=None,
-          **options) -> Sweep:
-    """Simulate every combination of ``prevalences`` and ``pool_sizes`` (either may be None).
+def _as_list(value):
+    if value is None:
+        return None
+    if isinstance(value, (str, Protocol, Assay)) or np.isscalar(value):
+        return [value]
+    return list(value)
 
-    Each point is a cell of the study with its own seed spawned from ``seed`` (point ``j`` gets
-    ``SeedSequence(seed).spawn(points)[j]``); all cells' cohorts run as one batch of tasks, on
-    ``client`` when given (see :func:`simulate`).
+
+def _assay_items(assay, assays) -> list[tuple[str | None, Assay]]:
+    """(label, assay) pairs: ``assays`` (a list, or a dict label -> Assay) swept, else ``assay``."""
+    if assays is None:
+        return [(None, DEFAULT_ASSAY if assay is None else assay)]
+    if assay is not None:
+        raise InputError("give assay or assays, not both")
+    items = list(assays.items()) if isinstance(assays, dict) else \
+        [(a.describe(), a) for a in assays]
+    if not items:
+        raise InputError("assays is empty")
+    return [(str(label), a) for label, a in items]
+
+
+def _takes(scheme, option: str) -> bool:
+    if isinstance(scheme, Protocol):
+        return False
+    accepted = accepted_options(scheme)
+    return accepted is None or option in accepted
+
+
+SWEPT = ("pool_size", "negative_below", "positive_above")  # protocol options a study may sweep
+
+
+def sweep(scheme, samples, prevalences=None, pool_sizes=None, assay: Assay | None = None,
+          runs: int = 1000, seed=None, progress=False, *, assays=None, negative_below=None,
+          positive_above=None, client=None, on_estimate=None, **options) -> Sweep:
+    """A study: every scheme at every combination of the swept settings.
+
+    Parameters
+    ----------
+    scheme : str, Protocol or a list of them
+        One scheme or several (``["dorfman", "array", "bayes"]``), compared in one table.
+    prevalences, pool_sizes : lists, optional
+        Swept values (None: the single value in ``options``). A pool size sweeps only the schemes
+        that take one; so do ``negative_below`` and ``positive_above`` (one value or a list).
+    assays : list of Assay, or dict label -> Assay, optional
+        Swept assays (instead of ``assay``).
+    seed, client, progress, on_estimate
+        As in :func:`simulate`. Cells at the same prevalence share their cohorts: cohort ``r`` at
+        prevalence ``i`` draws from child ``r`` of ``SeedSequence(seed).spawn(prevalences)[i]``
+        whatever the scheme, pool size, assay or thresholds (common random numbers, so
+        differences between schemes are measured on the same specimens). All cells' cohorts go
+        out as one batch of tasks.
     """
-    prevs = [None] if prevalences is None else [check_prevalence(p) for p in prevalences]
-    sizes = [options.pop("pool_size", None)] if pool_sizes is None else \
-        [check_count(k, "--pool-size") for k in pool_sizes]
-    if pool_sizes is not None:
-        accepted = accepted_options(scheme)
-        if accepted is not None and "pool_size" not in accepted:
-            raise InputError(f"the {scheme} scheme has no pool size to sweep over")
+    schemes = _as_list(scheme)
+    if not schemes:
+        raise InputError("give at least one scheme")
+    prevs = [None] if prevalences is None else [check_prevalence(p) for p in
+                                               _as_list(prevalences)]
+    swept = {"pool_size": [options.pop("pool_size", None)] if pool_sizes is None else
+             [check_count(k, "--pool-size") for k in _as_list(pool_sizes)],
+             "negative_below": _as_list(negative_below) or [None],
+             "positive_above": _as_list(positive_above) or [None]}
+    for option, values in swept.items():
+        if len(values) > 1 and not any(_takes(s, option) for s in schemes):
+            names = ", ".join(str(getattr(s, "name", s)) for s in schemes)
+            what = "pool size" if option == "pool_size" else option.replace("_", " ")
+            raise InputError(f"the {names} scheme{'s' if len(schemes) > 1 else ''} "
+                             f"{'have' if len(schemes) > 1 else 'has'} no {what} to sweep over")
     spec = specimens(samples)
     if len(prevs) > 1 and spec.prior is not None and not np.isnan(spec.prior).any():
         raise InputError("every specimen has a prior in the samples file, so a sweep over "
                          "prevalences would change nothing")
-    points = list(itertools.product(prevs, sizes))
+    assay_items = _assay_items(assay, assays)
     runs = check_count(runs, "--runs")
-    seeds = as_seed_sequence(seed).spawn(len(points))
-    cells = [_cell(scheme, make_cohort(spec, p), DEFAULT_ASSAY if assay is None else assay, runs,
-                   s, True, {**options, "pool_size": k}) for (p, k), s in zip(points, seeds)]
+    seeds = as_seed_sequence(seed).spawn(len(prevs))
+    cohorts = [make_cohort(spec, p) for p in prevs]
+    cells = []
+    for s in schemes:
+        values = [swept[o] if _takes(s, o) else [None] for o in SWEPT]
+        for i, (label, a) in itertools.product(range(len(prevs)), assay_items):
+            for combo in itertools.product(*values):
+                chosen = {o: v for o, v in zip(SWEPT, combo) if v is not None}
+                setting = {} if label is None else {"assay": label}
+                setting.update({o: v for o, v in chosen.items() if o != "pool_size"
+                                and len(swept[o]) > 1})
+                cells.append(_cell(s, cohorts[i], a, runs, seeds[i], True,
+                                   {**options, **chosen}, setting))
     frames = run_blocks(cells, client=client, progress=progress, on_estimate=on_estimate)
     return Sweep([_simulation(c, f, seed) for c, f in zip(cells, frames)])
