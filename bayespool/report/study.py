@@ -15,10 +15,13 @@ TABLE_COLUMNS = ("scheme", "prevalence", "assay", "pool_size", "rows", "cols", "
                  "negative_below", "positive_above")
 
 
-def build_study_report(study, title: str | None = None, *, created=None, command=None) -> str:
-    """The study's report as an HTML string; ``command`` is the command line that ran it."""
+def build_study_report(study, title: str | None = None, *, created=None, audit=None) -> str:
+    """The study's report as an HTML string; ``audit`` (a :class:`bayespool.audit.Audit`) is the
+    command's record (command line, inputs' SHA-256), made here when not given."""
     from .. import __version__
     from ..simulate.plots import MEASURES, measure_figure
+    from ..audit import make_audit
+    from .audit import audit_section
     from .page import page
     from .svg import to_svg
     table = study.table
@@ -32,7 +35,6 @@ def build_study_report(study, title: str | None = None, *, created=None, command
                        f"{c.specimens} specimens each")),
         ("Assay" + ("s" if len(assays) > 1 else ""), text("; ".join(assays))),
         ("Seed", text("none (not reproducible)" if first.seed is None else str(first.seed))),
-        ("Command", text(command) if command else None),
         ("What this is", text("Cohorts and readouts are drawn from the assay model, so these "
                               "figures describe the model given, not a laboratory. Cells at one "
                               "prevalence share their simulated cohorts.")),
@@ -53,6 +55,10 @@ def build_study_report(study, title: str | None = None, *, created=None, command
     toc.append(("table", "Table"))
     if created is None:
         created = datetime.now(timezone.utc)
+    if audit is None:
+        audit = make_audit({}, created=created, seed=first.seed)
+    sections.append(audit_section(audit))
+    toc.append(("audit", "Audit trail"))
     when = created.strftime("%Y-%m-%d %H:%M UTC") if isinstance(created, datetime) else str(created)
     meta = [f"Written {when} by bayespool {__version__}"]
     footer = f"bayespool {__version__}. This file is self-contained and loads nothing."
