@@ -135,8 +135,9 @@ def bench_bayes(args):
         base = json.loads(r.stdout.strip().splitlines()[-1])
         print(f"  baseline checkout {args.baseline}: {base['wall'] / runs:6.3f} / "
               f"{base['cpu'] / runs:6.3f}   ({base['cpu'] / c1:.1f}x the CPU time; tests per "
-              f"specimen {base['tests']:.4f} against {fast.characteristics.estimate['tests_per_sample']:.4f} "
-              "here, different seeds streams before per-cohort spawning)")
+              f"specimen {base['tests']:.4f} against "
+              f"{fast.characteristics.estimate['tests_per_sample']:.4f} here: a checkout from "
+              "before per-cohort streams draws other cohorts from the same seed)")
     print(f"  goal: at most {BAYES_GOAL:g} s per cohort on one core: "
           f"{'met' if c1 / runs <= BAYES_GOAL else 'NOT met'} (CPU time)")
 
