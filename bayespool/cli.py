@@ -629,11 +629,11 @@ def _check_simulate(args):
             raise InputError(f"--plots {args.plots}: no such folder")
         outputs.update({f"--plots {m}.{kind}": str(folder / f"{m}.{kind}")
                         for m in MEASURES for kind in ("png", "svg")})
-    check_outputs(outputs, {f"--assay {f}": f for f in args.assay_files})
     args.input_files = {"--samples": args.samples} if not str(args.samples).strip().isdigit() \
         else {}
     args.input_files.update({f"--assay {f}" if len(args.assay_files) > 1 else "--assay": f
                              for f in args.assay_files})
+    check_outputs(outputs, args.input_files)
     accepted = {s: accepted_options(s) for s in args.schemes}  # unknown schemes fail here
     for option, value in (("pool_size", args.pool_size), ("rows", args.rows),
                           ("cols", args.cols), ("tests", args.tests), ("method", args.method)):
