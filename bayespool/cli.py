@@ -19,6 +19,23 @@ CAUTION = ("Statistical decision support, not a diagnostic device: confirm resul
            "professional.")
 
 
+# Library errors name the Python parameter; the command line shows the flag that sets it. Flags
+# that are not "--" + the parameter with "-" for "_" are listed here, in this one place.
+FLAGS = {
+    "n_draws": "--posterior-draws",
+    'gibbs_options["chains"]': "--chains",
+    'gibbs_options["max_sweeps"]': "--gibbs-sweeps",
+    'gibbs_options["prevalence_prior"]': "--prevalence-prior",
+    'fixed["specificity"]': "--fix specificity=VALUE",
+    "result_words": "--result-word",
+}
+
+
+def flag(parameter: str) -> str:
+    """The command-line flag that sets a library parameter."""
+    return FLAGS.get(parameter) or "--" + parameter.replace("_", "-")
+
+
 class _Parser(argparse.ArgumentParser):
     """argparse with a one-line usage error (exit 2)."""
 
@@ -291,7 +308,7 @@ def _print_gibbs(post) -> None:
 
 
 def _run_decode(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import write_frame
     _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
@@ -468,7 +485,7 @@ def _run_design(args):
         if args.assay:
             from .assay import Assay
             assay = Assay.read(args.assay)
-        opt = optimal_dorfman(args.prevalence, assay, args.max_pool_size)
+        opt = optimal_dorfman(args.prevalence, assay, max_pool_size=args.max_pool_size)
         summary["optimum"] = opt.to_dict()
         summary["optimum"]["assay"] = assay.describe() if assay else "error-free"
         if not args.json:
@@ -594,7 +611,7 @@ def _announce_estimate(estimate) -> None:
 
 
 def _run_simulate(args):
-    from .simulate.engine import cluster_client
+    from .simulation.engine import cluster_client
     if args.workers is not None and args.workers < 1:
         raise InputError(f"--workers must be at least 1, got {args.workers}")
     _check_simulate(args)
@@ -621,15 +638,14 @@ def _check_simulate(args):
     from pathlib import Path
 
     from .assay import DEFAULT_ASSAY, Assay
-    from .design.base import check_count
     from .io import check_outputs
-    from .run import check_prevalence
-    from .simulate.protocols import accepted_options, make_protocol
+    from .simulation.protocols import accepted_options, make_protocol
+    from .validation import check_count, check_open_probability
     args.schemes = _comma_names(args.scheme, "--scheme")
     args.assay_files = _comma_names(args.assay, "--assay") if args.assay else []
     outputs = {f"--{k}": getattr(args, k) for k in ("out", "report") if getattr(args, k)}
     if args.plots:
-        from .simulate.plots import MEASURES
+        from .simulation.plots import MEASURES
         folder = Path(args.plots)
         if not folder.is_dir():
             raise InputError(f"--plots {args.plots}: no such folder")
@@ -654,8 +670,8 @@ def _check_simulate(args):
                     make_protocol(scheme, pool_size=k, negative_below=lo, positive_above=hi,
                                   **options)
     for p in args.prevalence or []:
-        check_prevalence(p)
-    check_count(args.runs, "--runs")
+        check_open_probability(p, "prevalence")
+    check_count(args.runs, "runs")
     from .design.specimens import specimens
     args.samples = specimens(args.samples)
     if args.assay_files:
@@ -673,8 +689,8 @@ def _single_cell(args) -> bool:
 
 def _simulate_on(args, client):
     from .io import write_frame
-    from .simulate import simulate, sweep
-    from .simulate.simulator import Sweep
+    from .simulation import simulate, sweep
+    from .simulation.simulator import Sweep
     prevs, sizes = args.prevalence, args.pool_size
     options = _simulate_options(args)
     progress = sys.stderr.isatty()
@@ -682,15 +698,16 @@ def _simulate_on(args, client):
     lo, hi = args.negative_below, args.positive_above
     if _single_cell(args):
         [assay] = args.assays.values()
-        sim = simulate(args.schemes[0], args.samples, prevs[0] if prevs else None, assay,
-                       runs=args.runs, seed=args.seed, progress=progress,
+        sim = simulate(args.schemes[0], args.samples, prevalence=prevs[0] if prevs else None,
+                       assay=assay, runs=args.runs, seed=args.seed, progress=progress,
                        pool_size=sizes[0] if sizes else None, negative_below=lo[0],
                        positive_above=hi[0], **where, **options)
         result = Sweep([sim])
     else:
         many = len(args.assays) > 1
-        result = sweep(args.schemes, args.samples, prevs, sizes if sizes and len(sizes) > 1
-                       else None, None if many else next(iter(args.assays.values())),
+        result = sweep(args.schemes, args.samples, prevalences=prevs,
+                       pool_sizes=sizes if sizes and len(sizes) > 1 else None,
+                       assay=None if many else next(iter(args.assays.values())),
                        runs=args.runs, seed=args.seed, progress=progress,
                        assays=args.assays if many else None, negative_below=lo,
                        positive_above=hi, **where,
@@ -701,7 +718,7 @@ def _simulate_on(args, client):
         write_frame(table, args.out)
     written = [args.out] if args.out else []
     if args.plots:
-        from .simulate.plots import write_plots
+        from .simulation.plots import write_plots
         written += [str(p) for p in write_plots(table, args.plots)]
     from .audit import make_audit
     audit = make_audit(args.input_files, argv=getattr(args, "argv", None), seed=args.seed)
@@ -872,8 +889,8 @@ def _add_calibrate(sub):
 
 
 def _run_calibrate_ct(args, table):
-    """A validation file with Cts: fit the [ct] load model (bayespool.calibrate.ct_fit)."""
-    from .calibrate.ct_fit import calibrate_ct
+    """A validation file with Cts: fit the [ct] load model (bayespool.calibration.ct_fit)."""
+    from .calibration.ct_fit import calibrate_ct
     result = calibrate_ct(table, cutoff=args.ct_cutoff)
     result.assay.write(args.out)
     if args.json:
@@ -889,9 +906,9 @@ def _run_calibrate_ct(args, table):
 
 
 def _run_calibrate(args):
-    from .calibrate import calibrate_runs, calibrate_validation
-    from .calibrate.plot import figure, plot_paths, write_plots
-    from .calibrate.validation import ValidationData
+    from .calibration import calibrate_runs, calibrate_validation
+    from .calibration.plot import figure, plot_paths, write_plots
+    from .calibration.validation import ValidationData
     from .run import Run
     if args.validation and (args.layout or args.readouts or args.samples):
         raise InputError("give either --validation or --layout/--readouts, not both")
@@ -958,7 +975,7 @@ def _run_calibrate(args):
 # ---- plan
 def _add_plan(sub):
     from .defaults import METHODS
-    from .plan import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
+    from .planning import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
     p = sub.add_parser("plan", help="the next most informative pools for the undecided samples",
                        description="Choose the next batch of pools by expected information gain "
                        "about the undecided samples, given the readouts so far. An empty layout "
@@ -994,9 +1011,9 @@ def _add_plan(sub):
 
 
 def _run_plan(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import write_frame
-    from .plan import plan
+    from .planning import plan
     report = args.report
     _check_outputs(args, out=args.out, report=report, worklist=args.worklist)
     if args.worklist and not args.samples:
@@ -1008,7 +1025,7 @@ def _run_plan(args):
                          args.layout)
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
                   positive_above=args.positive_above, seed=args.seed)
-    result = plan(run, assay, post, tests=args.tests, max_pool_size=args.max_pool_size,
+    result = plan(run, assay, posterior=post, tests=args.tests, max_pool_size=args.max_pool_size,
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked)
     frame = result.to_frame()
@@ -1283,7 +1300,7 @@ def main(argv=None) -> int:
             print(note, file=sys.stderr)
         return code
     except InputError as exc:
-        print(f"bayespool {args.command}: error: {exc}", file=sys.stderr)
+        print(f"bayespool {args.command}: error: {exc.renamed(flag)}", file=sys.stderr)
         return 2
     except OSError as exc:
         name = getattr(exc, "filename", None)

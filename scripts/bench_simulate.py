@@ -28,7 +28,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # this tree's bayespool
 
 from bayespool.assay import Assay, DilutionSensitivity  # noqa: E402
-from bayespool.simulate import simulate  # noqa: E402
+from bayespool.simulation import simulate  # noqa: E402
 
 GOAL_SECONDS = 10.0
 
@@ -63,17 +63,17 @@ def timed(fn):
 def bench_dorfman(args):
     assay = Assay(0.99, DilutionSensitivity(se_max=0.97, r50=40.0, slope=1.2))
     n, runs, k, p = args.samples, args.runs, args.pool_size, args.prevalence
-    simulate("dorfman", 50, p, assay, runs=2, seed=0, pool_size=k)  # warm-up (imports)
+    simulate("dorfman", 50, prevalence=p, assay=assay, runs=2, seed=0, pool_size=k)  # warm-up (imports)
 
-    t_batch, sim = timed(lambda: simulate("dorfman", n, p, assay, runs=runs, seed=1, pool_size=k))
-    t_run, sim_run = timed(lambda: simulate("dorfman", n, p, assay, runs=runs, seed=1,
+    t_batch, sim = timed(lambda: simulate("dorfman", n, prevalence=p, assay=assay, runs=runs, seed=1, pool_size=k))
+    t_run, sim_run = timed(lambda: simulate("dorfman", n, prevalence=p, assay=assay, runs=runs, seed=1,
                                             pool_size=k, batch=False))
     few = max(1, runs // 50)
     rng = np.random.default_rng(2)
     truths = rng.random((few, n)) < p
     t_loop, _ = timed(lambda: [python_loop_dorfman(t, k, assay, rng) for t in truths])
     t_loop *= runs / few
-    t_array, _ = timed(lambda: simulate("array", n, p, assay, runs=runs, seed=1))
+    t_array, _ = timed(lambda: simulate("array", n, prevalence=p, assay=assay, runs=runs, seed=1))
 
     print(f"Dorfman, {runs} runs of {n} specimens, pools of {k}, prevalence {p:g}, "
           f"{assay.describe()}")
@@ -100,9 +100,9 @@ BASELINE_CODE = """
 import sys, time, json
 sys.path.insert(0, sys.argv[1])
 from bayespool.simulate import simulate
-simulate("bayes", 600, 0.02, None, runs=1, seed=0)  # imports, cached kernels
+simulate("bayes", 600, prevalence=0.02, runs=1, seed=0)  # imports, cached kernels
 t0, c0 = time.perf_counter(), time.process_time()
-sim = simulate("bayes", 600, 0.02, None, runs=int(sys.argv[2]), seed=int(sys.argv[3]))
+sim = simulate("bayes", 600, prevalence=0.02, runs=int(sys.argv[2]), seed=int(sys.argv[3]))
 print(json.dumps({"wall": time.perf_counter() - t0, "cpu": time.process_time() - c0,
                   "tests": sim.characteristics.estimate["tests_per_sample"]}))
 """
@@ -116,9 +116,9 @@ def cpu_timed(fn):
 
 def bench_bayes(args):
     n, p, runs = BAYES_CELL["samples"], BAYES_CELL["prevalence"], args.cohorts
-    simulate("bayes", n, p, runs=1, seed=0)  # imports, cached kernels
-    w1, c1, fast = cpu_timed(lambda: simulate("bayes", n, p, runs=runs, seed=args.seed))
-    w0, c0, plain = cpu_timed(lambda: simulate("bayes", n, p, runs=runs, seed=args.seed,
+    simulate("bayes", n, prevalence=p, runs=1, seed=0)  # imports, cached kernels
+    w1, c1, fast = cpu_timed(lambda: simulate("bayes", n, prevalence=p, runs=runs, seed=args.seed))
+    w0, c0, plain = cpu_timed(lambda: simulate("bayes", n, prevalence=p, runs=runs, seed=args.seed,
                                                remember=False))
     same = fast.runs_frame.equals(plain.runs_frame)
     print(f"Bayesian loop, {runs} cohorts of {n} specimens at prevalence {p:g}, default assay, "
@@ -145,11 +145,11 @@ def bench_bayes(args):
 def bench_workers(args):
     from bayespool.simulate.engine import cluster_client
     n, p, runs = BAYES_CELL["samples"], BAYES_CELL["prevalence"], 4 * args.cohorts
-    simulate("bayes", n, p, runs=1, seed=0)
-    t_in, serial = timed(lambda: simulate("bayes", n, p, runs=runs, seed=args.seed))
+    simulate("bayes", n, prevalence=p, runs=1, seed=0)
+    t_in, serial = timed(lambda: simulate("bayes", n, prevalence=p, runs=runs, seed=args.seed))
     with cluster_client(workers=2) as client:
-        client.run(lambda: simulate("bayes", n, p, runs=1, seed=0))  # workers import and load
-        t_two, remote = timed(lambda: simulate("bayes", n, p, runs=runs, seed=args.seed,
+        client.run(lambda: simulate("bayes", n, prevalence=p, runs=1, seed=0))  # workers import and load
+        t_two, remote = timed(lambda: simulate("bayes", n, prevalence=p, runs=runs, seed=args.seed,
                                                client=client))
     print(f"Bayesian loop, {runs} cohorts of {n} at {p:g}: in-process {t_in:.2f} s, Dask "
           f"LocalCluster of 2 processes {t_two:.2f} s (cluster started and warmed before timing)")

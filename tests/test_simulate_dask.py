@@ -20,12 +20,12 @@ import numpy as np
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.simulate import Protocol, simulate, sweep
-from bayespool.simulate.cells import Cell, play
-from bayespool.simulate.cohort import make_cohort
-from bayespool.simulate.protocols import make_protocol
-from bayespool.simulate.protocols.dorfman import DorfmanTesting
-from bayespool.simulate.streams import child
+from bayespool.simulation import Protocol, simulate, sweep
+from bayespool.simulation.cells import Cell, play
+from bayespool.simulation.cohort import make_cohort
+from bayespool.simulation.protocols import make_protocol
+from bayespool.simulation.protocols.dorfman import DorfmanTesting
+from bayespool.simulation.streams import child
 
 distributed = pytest.importorskip("distributed") if not os.environ.get("CI") else \
     __import__("distributed")  # CI must run these, never skip them
@@ -84,14 +84,14 @@ def test_blocks_do_not_change_the_numbers():
     parts = pd.concat([play(cell, 0, 1), play(cell, 1, 4), play(cell, 4, 5)], ignore_index=True)
     assert whole.equals(parts)
     # the vectorised Dorfman path with per-cohort streams equals the per-run rule run by run
-    a = simulate("dorfman", 97, 0.08, ASSAY, runs=40, seed=5, pool_size=6, batch=True)
-    b = simulate("dorfman", 97, 0.08, ASSAY, runs=40, seed=5, pool_size=6, batch=False)
+    a = simulate("dorfman", 97, prevalence=0.08, assay=ASSAY, runs=40, seed=5, pool_size=6, batch=True)
+    b = simulate("dorfman", 97, prevalence=0.08, assay=ASSAY, runs=40, seed=5, pool_size=6, batch=False)
     assert a.runs_frame.equals(b.runs_frame)
 
 
 def test_local_cluster_gives_the_in_process_numbers(client):
-    serial = simulate("bayes", 48, 0.05, ASSAY, runs=6, seed=7, **BAYES)
-    remote = simulate("bayes", 48, 0.05, ASSAY, runs=6, seed=7, client=client, **BAYES)
+    serial = simulate("bayes", 48, prevalence=0.05, assay=ASSAY, runs=6, seed=7, **BAYES)
+    remote = simulate("bayes", 48, prevalence=0.05, assay=ASSAY, runs=6, seed=7, client=client, **BAYES)
     assert remote.runs_frame.equals(serial.runs_frame)
     assert remote.characteristics.estimate == serial.characteristics.estimate
     s1 = sweep("array", 96, prevalences=[0.01, 0.05], assay=ASSAY, runs=30, seed=2)
@@ -100,7 +100,7 @@ def test_local_cluster_gives_the_in_process_numbers(client):
 
 
 def test_a_worker_killed_mid_study_changes_nothing():
-    serial = simulate(SlowDorfman(), 60, 0.1, ASSAY, runs=60, seed=11, batch=False)
+    serial = simulate(SlowDorfman(), 60, prevalence=0.1, assay=ASSAY, runs=60, seed=11, batch=False)
     cluster, c = _local_cluster(2)
     try:
         pids = c.run(os.getpid)  # worker address -> process id
@@ -117,7 +117,7 @@ def test_a_worker_killed_mid_study_changes_nothing():
                     os.kill(pid, signal.SIGKILL)
                     killed.append(pid)
 
-        remote = simulate(SlowDorfman(), 60, 0.1, ASSAY, runs=60, seed=11, batch=False,
+        remote = simulate(SlowDorfman(), 60, prevalence=0.1, assay=ASSAY, runs=60, seed=11, batch=False,
                           client=c, progress=KillAfterFirst())
         assert killed, "no worker was killed: the study finished before the kill"
         assert remote.runs_frame.equals(serial.runs_frame)

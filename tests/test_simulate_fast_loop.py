@@ -11,11 +11,11 @@ import numpy as np
 import pandas as pd
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.decode import components, decode
-from bayespool.decode.exact import ExactMemo
-from bayespool.decode.exact_sample import sample_exact
+from bayespool.decoders import components, decode
+from bayespool.decoders.exact import ExactMemo
+from bayespool.decoders.exact_sample import sample_exact
 from bayespool.run import Run
-from bayespool.simulate import simulate
+from bayespool.simulation import simulate
 
 from .conftest import random_design
 
@@ -84,6 +84,6 @@ def test_memo_is_bounded():
 def test_the_loop_gives_the_same_numbers_with_and_without_the_memo():
     assay = ASSAYS[1]
     opts = dict(tests=16, max_pool_size=8, n_draws=200)
-    fast = simulate("bayes", 96, 0.04, assay, runs=4, seed=21, **opts)
-    plain = simulate("bayes", 96, 0.04, assay, runs=4, seed=21, remember=False, **opts)
+    fast = simulate("bayes", 96, prevalence=0.04, assay=assay, runs=4, seed=21, **opts)
+    plain = simulate("bayes", 96, prevalence=0.04, assay=assay, runs=4, seed=21, remember=False, **opts)
     assert fast.runs_frame.equals(plain.runs_frame)

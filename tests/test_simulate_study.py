@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from bayespool.assay import Assay, ConstantSensitivity
-from bayespool.simulate import simulate, sweep
+from bayespool.simulation import simulate, sweep
 
 ASSAY = Assay(0.99, ConstantSensitivity(0.95))
 
@@ -36,7 +36,7 @@ def test_schemes_share_cohorts_and_match_closed_forms():
     ind = t[t["scheme"] == "individual"]
     assert (abs(ind["specificity"] - 0.99) < 4 * ind["specificity_se"]).all()
     # a cell of a study equals the same cell simulated alone with the study's spawned seed
-    alone = simulate("dorfman", 96, 0.08, ASSAY, runs=300, pool_size=8,
+    alone = simulate("dorfman", 96, prevalence=0.08, assay=ASSAY, runs=300, pool_size=8,
                      seed=np.random.SeedSequence(3).spawn(2)[1])
     cell = next(s for s in study.results if s.scheme == "dorfman" and s.prevalence == 0.08
                 and s.parameters["pool_size"] == 8)

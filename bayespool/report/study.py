@@ -1,6 +1,6 @@
 """The HTML record of a simulated study: what was simulated, one figure per measure, the table.
 
-Built from a :class:`bayespool.simulate.Sweep` only (no simulation here), on the same page frame as
+Built from a :class:`bayespool.simulation.Sweep` only (no simulation here), on the same page frame as
 the run report: one self-contained file, figures as inline SVG, the caution at the top and bottom.
 """
 from __future__ import annotations
@@ -19,7 +19,7 @@ def build_study_report(study, title: str | None = None, *, created=None, audit=N
     """The study's report as an HTML string; ``audit`` (a :class:`bayespool.audit.Audit`) is the
     command's record (command line, inputs' SHA-256), made here when not given."""
     from .. import __version__
-    from ..simulate.plots import MEASURES, measure_figure
+    from ..simulation.plots import MEASURES, measure_figure
     from ..audit import make_audit
     from .audit import audit_section
     from .page import page
