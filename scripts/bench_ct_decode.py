@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from bayespool.assay import Assay, TableSensitivity, sensitivity_table
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.run import Run
 
 ASSAY = {"specificity": 0.995, "ct": {

@@ -253,7 +253,7 @@ def test_readout_rules(tmp_path, ct_assay):
 def test_simulated_ct_readouts_follow_the_implied_sensitivity(ct_assay):
     # the Tester draws Ct readouts from the load model; their amplification rate in pools of 8
     # with one positive matches Se(8, 1) (the model's definition), within 4 standard errors
-    from bayespool.simulate.protocol import Tester
+    from bayespool.simulation.protocol import Tester
     rng = np.random.default_rng(9)
     n_pools = 20000
     truth = np.zeros(8 * n_pools, dtype=bool)
