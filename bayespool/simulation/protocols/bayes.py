@@ -103,7 +103,14 @@ class BayesianLoop(Protocol):
             if nxt.n_tests == 0:
                 break
             results = tester.read_round(nxt.pool_ptr, nxt.pool_members)
+            before, frame = run.n_pools, run.readout_ct
             run = nxt.extend(run, results)
+            if tester.last_ct is not None:  # a [ct] assay: decode the Cts too
+                new = pd.DataFrame({"pool": before + np.arange(len(results)),
+                                    "result": np.asarray(results, dtype=np.int64),
+                                    "ct": tester.last_ct})
+                run.readout_ct = new if frame is None else pd.concat([frame, new],
+                                                                     ignore_index=True)
         else:
             post = decode(run, tester.assay, method=self.method,
                           negative_below=self.negative_below, positive_above=self.positive_above,
