@@ -99,7 +99,7 @@ BAYES_CELL = dict(samples=600, prevalence=0.02)
 BASELINE_CODE = """
 import sys, time, json
 sys.path.insert(0, sys.argv[1])
-from bayespool.simulate import simulate
+from bayespool.simulation import simulate
 simulate("bayes", 600, prevalence=0.02, runs=1, seed=0)  # imports, cached kernels
 t0, c0 = time.perf_counter(), time.process_time()
 sim = simulate("bayes", 600, prevalence=0.02, runs=int(sys.argv[2]), seed=int(sys.argv[3]))
@@ -143,7 +143,7 @@ def bench_bayes(args):
 
 
 def bench_workers(args):
-    from bayespool.simulate.engine import cluster_client
+    from bayespool.simulation.engine import cluster_client
     n, p, runs = BAYES_CELL["samples"], BAYES_CELL["prevalence"], 4 * args.cohorts
     simulate("bayes", n, prevalence=p, runs=1, seed=0)
     t_in, serial = timed(lambda: simulate("bayes", n, prevalence=p, runs=runs, seed=args.seed))
@@ -158,8 +158,8 @@ def bench_workers(args):
 
 
 def bench_study(args):
-    from bayespool.simulate import sweep
-    from bayespool.simulate.engine import cluster_client
+    from bayespool.simulation import sweep
+    from bayespool.simulation.engine import cluster_client
     prevs = [0.005, 0.01, 0.02, 0.05, 0.1, 0.15]
     schemes = ["individual", "dorfman", "array", "bayes"]
     runs = args.cohorts
