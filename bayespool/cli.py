@@ -402,14 +402,6 @@ def _float_list(text: str) -> list[float]:
     return _number_list(text, float)
 
 
-def _read_assay_or_default(args):
-    from .assay import DEFAULT_ASSAY, Assay
-    if getattr(args, "assay", None):
-        return Assay.read(args.assay)
-    _note(args, f"no --assay given: assuming {DEFAULT_ASSAY.describe()}")
-    return DEFAULT_ASSAY
-
-
 def _add_design(sub):
     p = sub.add_parser("design", help="make a pooling layout (dorfman, array, kautz-singleton, "
                        "random, code) or find the best Dorfman pool size",
@@ -561,30 +553,34 @@ def _print_optimum(opt, assay, capped: bool) -> None:
 # ---- simulate
 def _add_simulate(sub):
     from .defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
-    p = sub.add_parser("simulate", help="operating characteristics of a testing protocol by "
-                       "simulation", description="Simulate a testing protocol on invented cohorts "
+    p = sub.add_parser("simulate", help="operating characteristics of testing protocols by "
+                       "simulation", description="Simulate testing protocols on invented cohorts "
                        "with readouts drawn from the assay model (dilution included): tests, "
                        "sensitivity, specificity, predictive values, rounds and draws per "
-                       "specimen with Monte Carlo standard errors. Comma-separated prevalences or "
-                       "pool sizes make a sweep. " + CAUTION)
-    p.add_argument("--scheme", required=True, metavar="SCHEME",
-                   help="protocol: individual, dorfman (classic two-stage), array (rows, "
+                       "specimen with Monte Carlo standard errors. Comma-separated schemes, "
+                       "prevalences, pool sizes, assay files or thresholds make a study in one "
+                       "table. " + CAUTION)
+    p.add_argument("--scheme", required=True, metavar="SCHEME[,SCHEME...]",
+                   help="protocol(s): individual, dorfman (classic two-stage), array (rows, "
                    "columns, then crossings) or bayes (decode, plan the next --tests, read, "
                    "repeat until every specimen is decided)")
     p.add_argument("--samples", required=True, metavar="N|CSV",
                    help="specimens per cohort, or a samples file (its prior column is used)")
     p.add_argument("--prevalence", type=_float_list, metavar="P[,P...]",
                    help="prior of every specimen (without a prior in the samples file)")
-    p.add_argument("--assay", metavar="TOML",
-                   help="assay model that draws the readouts (default: constant Se 0.95, Sp 0.99)")
+    p.add_argument("--assay", metavar="TOML[,TOML...]",
+                   help="assay model(s) that draw the readouts (default: constant Se 0.95, "
+                   "Sp 0.99)")
     p.add_argument("--pool-size", type=_int_list, metavar="K[,K...]", help="dorfman: pool size")
     p.add_argument("--rows", type=int, metavar="R", help="array: rows per grid (default 8)")
     p.add_argument("--cols", type=int, metavar="C", help="array: columns per grid (default 12)")
     p.add_argument("--max-pool-size", type=int, metavar="K", help="largest pool allowed")
-    p.add_argument("--negative-below", type=_probability, default=NEGATIVE_BELOW, metavar="LO",
-                   help="decoding protocols: call negative below LO (default: %(default)s)")
-    p.add_argument("--positive-above", type=_probability, default=POSITIVE_ABOVE, metavar="HI",
-                   help="decoding protocols: call positive above HI (default: %(default)s)")
+    p.add_argument("--negative-below", type=_float_list, default=[NEGATIVE_BELOW],
+                   metavar="LO[,LO...]", help="decoding protocols: call negative below LO "
+                   f"(default: {NEGATIVE_BELOW})")
+    p.add_argument("--positive-above", type=_float_list, default=[POSITIVE_ABOVE],
+                   metavar="HI[,HI...]", help="decoding protocols: call positive above HI "
+                   f"(default: {POSITIVE_ABOVE})")
     p.add_argument("--tests", type=int, metavar="N",
                    help="decoding protocols: tests per round")
     p.add_argument("--method", metavar="NAME", help="decoding protocols: decoder")
@@ -593,61 +589,154 @@ def _add_simulate(sub):
     p.add_argument("--seed", type=int, metavar="S", help="random seed (reproducible results)")
     p.add_argument("--out", metavar="CSV", help="also write the results table")
     p.add_argument("--json", action="store_true", help="print the results as JSON")
+    p.add_argument("--plots", metavar="DIR", help="write a figure per measure (tests per "
+                   "specimen, sensitivity, specificity against prevalence) as PNG and SVG here")
+    p.add_argument("--report", metavar="HTML", help="write the study as an HTML report")
+    where = p.add_mutually_exclusive_group()
+    where.add_argument("--workers", type=int, metavar="N",
+                       help="play the cohorts on N local worker processes (a Dask LocalCluster); "
+                       "the numbers are the same as in-process")
+    where.add_argument("--scheduler", metavar="ADDRESS",
+                       help="play the cohorts on the Dask cluster whose scheduler is at ADDRESS "
+                       "(e.g. tcp://10.0.0.5:8786)")
     return p
 
 
+LONG_STUDY_SECONDS = 10.0  # studies forecast to take longer say so before they start
+
+
+def _announce_estimate(estimate) -> None:
+    if estimate.seconds >= LONG_STUDY_SECONDS:
+        print(f"bayespool simulate: {estimate.text()}", file=sys.stderr, flush=True)
+
+
 def _run_simulate(args):
-    from .io import write_frame
-    from .validation import check_count, check_open_probability
-    from .simulation import simulate, sweep
+    from .simulation.engine import cluster_client
+    if args.workers is not None and args.workers < 1:
+        raise InputError(f"--workers must be at least 1, got {args.workers}")
+    _check_simulate(args)
+    with cluster_client(args.workers, args.scheduler) as client:
+        return _simulate_on(args, client)
+
+
+def _simulate_options(args) -> dict:
+    return {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
+            "tests": args.tests, "method": args.method}
+
+
+def _comma_names(text: str, what: str) -> list[str]:
+    names = [t.strip() for t in text.split(",")]
+    if not all(names):
+        raise InputError(f"{what} {text!r} has an empty item")
+    if len(set(names)) < len(names):
+        raise InputError(f"{what} {text!r} names one twice")
+    return names
+
+
+def _check_simulate(args):
+    """Every option checked before any work (and before a cluster starts)."""
+    from pathlib import Path
+
+    from .assay import DEFAULT_ASSAY, Assay
+    from .io import check_outputs
     from .simulation.protocols import accepted_options, make_protocol
-    _check_outputs(args, out=args.out)
-    prevs, sizes = args.prevalence, args.pool_size
-    accepted = accepted_options(args.scheme)  # an unknown scheme fails here, before any work
-    for option, value in (("pool_size", sizes), ("rows", args.rows), ("cols", args.cols),
-                          ("tests", args.tests), ("method", args.method)):
-        if value is not None and accepted is not None and option not in accepted:
+    from .validation import check_count, check_open_probability
+    args.schemes = _comma_names(args.scheme, "--scheme")
+    args.assay_files = _comma_names(args.assay, "--assay") if args.assay else []
+    outputs = {f"--{k}": getattr(args, k) for k in ("out", "report") if getattr(args, k)}
+    if args.plots:
+        from .simulation.plots import MEASURES
+        folder = Path(args.plots)
+        if not folder.is_dir():
+            raise InputError(f"--plots {args.plots}: no such folder")
+        outputs.update({f"--plots {m}.{kind}": str(folder / f"{m}.{kind}")
+                        for m in MEASURES for kind in ("png", "svg")})
+    args.input_files = {"--samples": args.samples} if not str(args.samples).strip().isdigit() \
+        else {}
+    args.input_files.update({f"--assay {f}" if len(args.assay_files) > 1 else "--assay": f
+                             for f in args.assay_files})
+    check_outputs(outputs, args.input_files)
+    accepted = {s: accepted_options(s) for s in args.schemes}  # unknown schemes fail here
+    for option, value in (("pool_size", args.pool_size), ("rows", args.rows),
+                          ("cols", args.cols), ("tests", args.tests), ("method", args.method)):
+        if value is not None and not any(a is None or option in a for a in accepted.values()):
             raise InputError(f"--{option.replace('_', '-')} does not apply to the "
-                             f"{args.scheme} scheme")
-    options = {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
-               "negative_below": args.negative_below, "positive_above": args.positive_above,
-               "tests": args.tests, "method": args.method}
-    for k in sizes or [None]:
-        make_protocol(args.scheme, pool_size=k, **options)  # checks the options before any work
-    for p in prevs or []:
+                             f"{', '.join(args.schemes)} scheme{'s' if len(accepted) > 1 else ''}")
+    options = _simulate_options(args)
+    for scheme in args.schemes:  # checks the options before any work
+        for k in args.pool_size or [None]:
+            for lo in args.negative_below:
+                for hi in args.positive_above:
+                    make_protocol(scheme, pool_size=k, negative_below=lo, positive_above=hi,
+                                  **options)
+    for p in args.prevalence or []:
         check_open_probability(p, "prevalence")
     check_count(args.runs, "runs")
     from .design.specimens import specimens
     args.samples = specimens(args.samples)
-    assay = _read_assay_or_default(args)
-    progress = sys.stderr.isatty()
-    if (prevs is None or len(prevs) == 1) and (sizes is None or len(sizes) == 1):
-        sim = simulate(args.scheme, args.samples, prevalence=prevs[0] if prevs else None, assay=assay,
-                       runs=args.runs, seed=args.seed, progress=progress,
-                       pool_size=sizes[0] if sizes else None, **options)
-        if args.out:
-            from .simulation.simulator import Sweep
-            write_frame(Sweep([sim]).table, args.out)
-        if args.json:
-            print(json.dumps(_json_ready({**sim.to_dict(), "audit": _audit(args).to_dict()}),
-                             indent=2))
-        else:
-            _print_simulation(sim, sim.characteristics.table())
+    if args.assay_files:
+        args.assays = {f: Assay.read(f) for f in args.assay_files}
     else:
-        result = sweep(args.scheme, args.samples, prevalences=prevs,
-                       pool_sizes=sizes if sizes and len(sizes) > 1 else None, assay=assay,
+        _note(args, f"no --assay given: assuming {DEFAULT_ASSAY.describe()}")
+        args.assays = {None: DEFAULT_ASSAY}
+
+
+def _single_cell(args) -> bool:
+    return all(v is None or len(v) == 1 for v in (
+        args.schemes, args.prevalence, args.pool_size, list(args.assays),
+        args.negative_below, args.positive_above))
+
+
+def _simulate_on(args, client):
+    from .io import write_frame
+    from .simulation import simulate, sweep
+    from .simulation.simulator import Sweep
+    prevs, sizes = args.prevalence, args.pool_size
+    options = _simulate_options(args)
+    progress = sys.stderr.isatty()
+    where = {"client": client, "on_estimate": _announce_estimate}
+    lo, hi = args.negative_below, args.positive_above
+    if _single_cell(args):
+        [assay] = args.assays.values()
+        sim = simulate(args.schemes[0], args.samples, prevalence=prevs[0] if prevs else None,
+                       assay=assay, runs=args.runs, seed=args.seed, progress=progress,
+                       pool_size=sizes[0] if sizes else None, negative_below=lo[0],
+                       positive_above=hi[0], **where, **options)
+        result = Sweep([sim])
+    else:
+        many = len(args.assays) > 1
+        result = sweep(args.schemes, args.samples, prevalences=prevs,
+                       pool_sizes=sizes if sizes and len(sizes) > 1 else None,
+                       assay=None if many else next(iter(args.assays.values())),
                        runs=args.runs, seed=args.seed, progress=progress,
-                       **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}), **options)
-        table = result.table
-        if args.out:
-            write_frame(table, args.out)
-        if args.json:
-            print(json.dumps(_json_ready({"points": result.to_dict(),
-                                          "audit": _audit(args).to_dict()}), indent=2))
-        else:
-            _print_sweep(result, table)
-    if args.out and not args.json:
-        print(f"wrote {args.out}")
+                       assays=args.assays if many else None, negative_below=lo,
+                       positive_above=hi, **where,
+                       **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}),
+                       **options)
+    table = result.table
+    if args.out:
+        write_frame(table, args.out)
+    written = [args.out] if args.out else []
+    if args.plots:
+        from .simulation.plots import write_plots
+        written += [str(p) for p in write_plots(table, args.plots)]
+    from .audit import make_audit
+    audit = make_audit(args.input_files, argv=getattr(args, "argv", None), seed=args.seed)
+    if args.report:
+        from .report.study import write_study_report
+        write_study_report(args.report, result, audit=audit)
+        written.append(args.report)
+    if args.json:
+        doc = result.results[0].to_dict() if len(result.results) == 1 and _single_cell(args) \
+            else {"points": result.to_dict()}
+        print(json.dumps(_json_ready({**doc, "audit": audit.to_dict()}), indent=2))
+    elif len(result.results) == 1:
+        sim = result.results[0]
+        _print_simulation(sim, sim.characteristics.table())
+    else:
+        _print_sweep(result, table)
+    if written and not args.json:
+        print(f"wrote {', '.join(written)}")
     return 0
 
 
@@ -712,17 +801,28 @@ def _print_simulation(sim, table) -> None:
     print("  " + CAUTION)
 
 
+def _blank(value) -> bool:
+    return value is None or (isinstance(value, float) and value != value)
+
+
 def _print_sweep(result, table) -> None:
     first = result.results[0]
-    print(f"{first.scheme} sweep, {first.characteristics.specimens} specimens, "
-          f"{first.characteristics.runs} runs per setting, {first.assay.describe()}")
-    keys = [k for k in ("prevalence", "pool_size", "rows", "cols") if k in table.columns]
+    schemes = list(dict.fromkeys(table["scheme"]))
+    assays = list(dict.fromkeys(s.assay.describe() for s in result.results))
+    print(f"{', '.join(schemes)} {'study' if len(schemes) > 1 else 'sweep'}, "
+          f"{first.characteristics.specimens} specimens, "
+          f"{first.characteristics.runs} runs per setting"
+          + (f", {assays[0]}" if len(assays) == 1 else ""))
+    keys = [k for k in ("scheme", "prevalence", "assay", "pool_size", "rows", "cols",
+                        "negative_below", "positive_above")
+            if k in table.columns and (k != "scheme" or len(schemes) > 1)]
     cols = ["tests_per_sample", "sensitivity", "specificity", "ppv", "npv", "rounds"]
     head = [k.replace("_", " ") for k in keys] + ["tests/specimen", "sensitivity",
                                                   "specificity", "PPV", "NPV", "rounds"]
     rows = []
     for r in table.to_dict("records"):
-        cells = [f"{r[k]:g}" for k in keys]
+        cells = ["" if _blank(r[k]) else (f"{r[k]:g}" if isinstance(r[k], (int, float))
+                                          else str(r[k])) for k in keys]
         cells += [_fmt(r[c], r[f"{c}_se"], 3) for c in cols]
         rows.append(cells)
     widths = [max(len(h), *(len(row[i]) for row in rows)) for i, h in enumerate(head)]

@@ -245,3 +245,33 @@ def test_posterior_by_specimen_id(demo):
         post["no such specimen"]
     text = repr(post)
     assert "\n" not in text and text.startswith("Posterior(") and len(text) < 200
+
+
+def _readme_python_block():
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = text.split("## From Python\n", 1)[1].split("\n## ", 1)[0]
+    return section.split("```python\n", 1)[1].split("```", 1)[0]
+
+
+def test_readme_from_python_runs_as_written_and_matches_the_command_line(tmp_path, monkeypatch,
+                                                                          cli):
+    from bayespool.demo import run_demo
+    import pandas as pd
+    run_demo(tmp_path / "bayespool-demo")
+    monkeypatch.chdir(tmp_path)
+    space = {}
+    exec(compile(_readme_python_block(), "README.md", "exec"), space)
+    assert (tmp_path / "bayespool-demo" / "from-python.html").exists()
+    # the frame equals what the command line writes for the same inputs
+    d = tmp_path / "bayespool-demo"
+    res = cli("decode", "--layout", d / "layout.csv", "--readouts", d / "readouts.csv",
+              "--samples", d / "samples.csv", "--assay", d / "assay.toml", "--prevalence",
+              "0.02", "--seed", "1", "--out", tmp_path / "cli.csv")
+    assert res.code == 0, res.err
+    written = pd.read_csv(tmp_path / "cli.csv", dtype=str, keep_default_na=False)
+    frame = space["frame"].reset_index(drop="sample" in space["frame"].columns)
+    assert list(written["sample"]) == [str(s) for s in frame["sample"]]
+    # the file holds 10 significant digits (io.write_frame): the same numbers, as written
+    assert list(written["probability"]) == ["%.10g" % p for p in frame["probability"]]
+    assert list(written["call"]) == list(frame["call"])
+    assert space["one"]["probability"] == frame["probability"].iloc[0]

@@ -248,3 +248,26 @@ def test_readout_rules(tmp_path, ct_assay):
     bad = write_csv(tmp_path / "bad.csv", [("P1", "positive", "-3")], ["pool", "result", "ct"])
     with pytest.raises(Exception, match="column"):
         Run.read(lay, bad)
+
+
+def test_simulated_ct_readouts_follow_the_implied_sensitivity(ct_assay):
+    # the Tester draws Ct readouts from the load model; their amplification rate in pools of 8
+    # with one positive matches Se(8, 1) (the model's definition), within 4 standard errors
+    from bayespool.simulation.protocol import Tester
+    rng = np.random.default_rng(9)
+    n_pools = 20000
+    truth = np.zeros(8 * n_pools, dtype=bool)
+    truth[::8] = True
+    tester = Tester(truth, ct_assay, rng)
+    ptr = np.arange(0, 8 * n_pools + 1, 8)
+    hit = tester.read_round(ptr, np.arange(8 * n_pools))
+    se = float(ct_assay.se(np.array([8]), np.array([1]))[0])
+    assert abs(hit.mean() - se) < 4 * np.sqrt(se * (1 - se) / n_pools)
+    ct = tester.last_ct[hit]
+    assert np.all(ct < ct_assay.ct.cutoff)
+    # the same specimens read again alone: their Ct is lower by log2 8 = 3 cycles on average
+    # (dilution law, common practice), as the individual Ct is shared between the readings
+    pooled_ct = tester.last_ct.copy()
+    alone = tester.read_round(np.arange(0, n_pools + 1), np.arange(0, 8 * n_pools, 8))
+    both = hit & alone
+    assert np.mean(pooled_ct[both] - tester.last_ct[both]) == pytest.approx(3.0, abs=0.05)

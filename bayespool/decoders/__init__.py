@@ -93,7 +93,8 @@ def _samples_of(comps: Components, selected: np.ndarray) -> np.ndarray:
 
 def _exact_part(run, lik_ptr, loglik, comps, selected, options) -> DecodedPart:
     prob, log_z, count_ptr, counts = decode_exact(run, lik_ptr, loglik, comps, selected,
-                                                  limit=options.get("exact_limit", EXACT_LIMIT))
+                                                  limit=options.get("exact_limit", EXACT_LIMIT),
+                                                  memo=options.get("exact_memo"))
     parts = [counts[count_ptr[c]:count_ptr[c + 1]] for c in selected]
     return DecodedPart("exact", selected, _samples_of(comps, selected), prob, log_z[selected],
                        parts)
@@ -227,23 +228,27 @@ def decode(run: Run, assay, *, method: str = "auto",
            positive_above: float = DEFAULT_POSITIVE_ABOVE,
            seed=None, exact_limit: int = EXACT_LIMIT, damping: float = DAMPING,
            tolerance: float = TOLERANCE, max_sweeps: int = MAX_SWEEPS,
-           progress: bool | None = None, gibbs_options: dict | None = None) -> Posterior:
+           progress: bool | None = None, gibbs_options: dict | None = None,
+           exact_memo: dict | None = None) -> Posterior:
     """Posterior P(x_i = 1 | readouts) for every specimen of ``run`` under ``assay``.
 
     ``method`` is one of :data:`METHODS`. ``damping``, ``tolerance`` and ``max_sweeps`` steer belief
     propagation (see :mod:`bayespool.decoders.bp`); ``progress`` shows sweeps on stderr (default: when
     it is a terminal and the run is large). ``gibbs_options`` go to the Gibbs sampler (chains,
     max_sweeps, prevalence_prior, ...; see :meth:`bayespool.decoders.gibbs.GibbsSampler.sample`).
+    ``exact_memo``: an :class:`~bayespool.decoders.exact.ExactMemo` the caller keeps across
+    decodes of a growing run (the closed loop); components whose enumeration would read exactly
+    the same numbers are taken from it (bit-identical results).
     """
     from ..ct_evidence import ct_notes
     post = _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
-                   tolerance, max_sweeps, progress, gibbs_options)
+                   tolerance, max_sweeps, progress, gibbs_options, exact_memo)
     post.warnings.extend(ct_notes(run, assay))
     return post
 
 
 def _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
-            tolerance, max_sweeps, progress, gibbs_options) -> Posterior:
+            tolerance, max_sweeps, progress, gibbs_options, exact_memo=None) -> Posterior:
     method = check_choice(method, "method", METHODS)
     lo, hi = check_thresholds(negative_below, positive_above)
     damping, tolerance, max_sweeps = check_bp_options(damping, tolerance, max_sweeps)
@@ -271,7 +276,8 @@ def _decode(run, assay, method, negative_below, positive_above, seed, exact_limi
     choice = choose_decoders(run, comps, method, exact_limit)
     options = {"exact_limit": exact_limit, "damping": damping, "tolerance": tolerance,
                "max_sweeps": max_sweeps, "progress": progress, "seed": seed,
-               "negative_below": lo, "positive_above": hi, "gibbs_options": gibbs_options}
+               "negative_below": lo, "positive_above": hi, "gibbs_options": gibbs_options,
+               "exact_memo": exact_memo}
     decoders = PART_DECODERS
     if assay.ct is not None:  # shared Cts: joint enumeration where affordable (decode.ct_decode)
         from .ct_decode import ct_exact_part, ct_gibbs_part, ct_options

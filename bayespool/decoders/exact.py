@@ -111,22 +111,103 @@ def _enumerate(comp_list, csptr, csamples, cpptr, cpools, sample_ptr, sample_poo
                 continue
             w = np.exp(lw[g] - top)
             z += w
-            rest = g ^ (g >> 1)
+            mask = g ^ (g >> 1)
             ones = 0
-            while rest:
-                low = rest & -rest
-                b = 0
-                while (low >> b) != 1:
-                    b += 1
-                acc[b] += w
-                ones += 1
-                rest ^= low
+            for b in range(m):  # set bits in increasing order, as every sum has always run
+                if (mask >> b) & 1:
+                    acc[b] += w
+                    ones += 1
             cnt[ones] += w
         log_z[c] = top + np.log(z)
         for b in range(m):
             prob[csamples[s0 + b]] = acc[b] / z
         for b in range(m + 1):
             counts[count_ptr[c] + b] = cnt[b] / z
+
+
+@njit(cache=True)
+def _signatures(comp_list, csptr, csamples, cpptr, cpools, sample_ptr, sample_pools, lik_ptr,
+                loglik, log_p, log_q):
+    """Everything the enumeration of each listed component reads, flattened in the order it reads
+    it (sizes, priors, each specimen's read pools as local indices, each pool's log L): two
+    components with equal signatures give bit-identical results."""
+    n_pools = len(lik_ptr) - 1
+    local = np.full(n_pools, -1, dtype=np.int64)
+    ptr = np.zeros(len(comp_list) + 1, dtype=np.int64)
+    for pass_ in range(2):
+        if pass_ == 1:
+            out = np.empty(ptr[-1])
+        for ci in range(len(comp_list)):
+            c = comp_list[ci]
+            s0, s1, p0, p1 = csptr[c], csptr[c + 1], cpptr[c], cpptr[c + 1]
+            for a in range(p0, p1):
+                local[cpools[a]] = a - p0
+            k = ptr[ci] if pass_ == 1 else 0
+            if pass_ == 1:
+                out[k] = s1 - s0
+                out[k + 1] = p1 - p0
+            k += 2
+            for b in range(s0, s1):
+                i = csamples[b]
+                if pass_ == 1:
+                    out[k] = log_p[i]
+                    out[k + 1] = log_q[i]
+                k += 3
+                n_read = 0
+                for a in range(sample_ptr[i], sample_ptr[i + 1]):
+                    j = local[sample_pools[a]]
+                    if j >= 0:
+                        if pass_ == 1:
+                            out[k] = j
+                        k += 1
+                        n_read += 1
+                if pass_ == 1:
+                    out[k - n_read - 1] = n_read
+            for a in range(p0, p1):
+                t = cpools[a]
+                if pass_ == 1:
+                    out[k] = lik_ptr[t + 1] - lik_ptr[t]
+                k += 1
+                for v in range(lik_ptr[t], lik_ptr[t + 1]):
+                    if pass_ == 1:
+                        out[k] = loglik[v]
+                    k += 1
+            for a in range(p0, p1):
+                local[cpools[a]] = -1
+            if pass_ == 0:
+                ptr[ci + 1] = ptr[ci] + k
+    return ptr, out
+
+
+class ExactMemo:
+    """What enumerations of components found, kept across decodes and draws of a growing run.
+
+    The closed loop decodes and samples the same run again after every round, while most of its
+    components are untouched by the new tests (and many are alike: every negative pool of 16 at one
+    prevalence). Entries are keyed by everything an enumeration reads (:func:`_signatures`), so a
+    remembered result is bit-identical to enumerating again. Both stores are bounded: a full one
+    is emptied.
+    """
+
+    MARGINALS_LIMIT = 50_000      # components
+    CDF_LIMIT = 2 ** 23           # doubles of cumulative state weights (64 MiB)
+
+    def __init__(self):
+        self.marginals: dict = {}   # signature -> (probabilities, log Z, count distribution)
+        self.cdfs: dict = {}        # signature -> cumulative state weights (Gray-code order)
+        self.cdf_size = 0
+
+    def keys(self, selected, graph) -> list[bytes]:
+        sig_ptr, sig = _signatures(selected, *graph)
+        return [sig[sig_ptr[j]:sig_ptr[j + 1]].tobytes() for j in range(len(selected))]
+
+    def remember_cdf(self, key: bytes, cdf: np.ndarray) -> None:
+        if self.cdf_size + len(cdf) > self.CDF_LIMIT:
+            self.cdfs.clear()
+            self.cdf_size = 0
+        if len(cdf) <= self.CDF_LIMIT:
+            self.cdfs[key] = cdf
+            self.cdf_size += len(cdf)
 
 
 def check_component_sizes(comps: Components, selected: np.ndarray, limit: int = EXACT_LIMIT):
@@ -138,8 +219,15 @@ def check_component_sizes(comps: Components, selected: np.ndarray, limit: int = 
                          "use method bp or gibbs, or auto", parameters=("method",))
 
 
-def decode_exact(run, lik_ptr, loglik, comps: Components, selected=None, limit: int = EXACT_LIMIT):
+def decode_exact(run, lik_ptr, loglik, comps: Components, selected=None, limit: int = EXACT_LIMIT,
+                 memo: ExactMemo | None = None):
     """Exact marginals for the selected components (all by default).
+
+    ``memo`` (an :class:`ExactMemo` kept by the caller across decodes, as the closed loop does)
+    remembers each
+    enumerated component by everything its enumeration reads (:func:`_signatures`); a component
+    met again (untouched by new tests, or identical to one seen before) is not enumerated again,
+    and its results are bit-identical to enumerating it.
 
     Returns (prob, log_z per component, count_ptr, counts): the components' count distributions are
     ``counts[count_ptr[c]:count_ptr[c+1]]`` (length size + 1). Raises ImpossibleEvidenceError when a
@@ -156,13 +244,38 @@ def decode_exact(run, lik_ptr, loglik, comps: Components, selected=None, limit: 
     prob = np.array(prior, dtype=float)
     log_z = np.zeros(comps.n_components)
     counts = np.zeros(int(count_ptr[-1]))
-    _enumerate(selected, comps.sample_ptr, comps.samples, comps.pool_ptr, comps.pools,
-               run.sample_ptr, run.sample_pools, lik_ptr, loglik, log_p, log_q, count_ptr, prob,
-               log_z, counts)
+    graph = (comps.sample_ptr, comps.samples, comps.pool_ptr, comps.pools, run.sample_ptr,
+             run.sample_pools, lik_ptr, loglik, log_p, log_q)
+    if memo is None:
+        _enumerate(selected, *graph, count_ptr, prob, log_z, counts)
+    else:
+        _enumerate_remembered(memo, selected, graph, comps, count_ptr, prob, log_z, counts)
     bad = selected[np.isneginf(log_z[selected])]
     if len(bad):
         raise impossible(run, comps.pools_of(int(bad[0])))
     return prob, log_z, count_ptr, counts
+
+
+def _enumerate_remembered(memo: ExactMemo, selected, graph, comps, count_ptr, prob, log_z,
+                          counts):
+    """_enumerate for the components ``memo`` does not know; the others copied from it."""
+    csptr, csamples = comps.sample_ptr, comps.samples
+    keys = memo.keys(selected, graph)
+    known_ = memo.marginals
+    new = np.array([j for j, k in enumerate(keys) if k not in known_], dtype=np.int64)
+    if len(new):
+        _enumerate(selected[new], *graph, count_ptr, prob, log_z, counts)
+        if len(known_) + len(new) > memo.MARGINALS_LIMIT:
+            known_.clear()
+    for j, key in enumerate(keys):
+        c = selected[j]
+        own = csamples[csptr[c]:csptr[c + 1]]
+        cnt = slice(count_ptr[c], count_ptr[c + 1])
+        known = known_.get(key)
+        if known is None:
+            known_[key] = (prob[own].copy(), float(log_z[c]), counts[cnt].copy())
+        else:
+            prob[own], log_z[c], counts[cnt] = known
 
 
 def impossible(run, pools) -> ImpossibleEvidenceError:

@@ -21,11 +21,12 @@ SAMPLE_LIMIT = EXACT_LIMIT  # largest component drawn exactly
 
 
 def posterior_draws(run, assay, posterior, n_draws: int = DEFAULT_DRAWS, rng=None,
-                    notes: list | None = None) -> np.ndarray:
+                    notes: list | None = None, memo=None) -> np.ndarray:
     """Joint posterior draws, an array (n_draws, n_samples) of uint8 (1 = positive).
 
     ``rng`` is a ``numpy.random.Generator`` (or a seed). ``notes`` (a list), when given, receives a
-    line about any approximation made.
+    line about any approximation made. ``memo``: an
+    :class:`~bayespool.decoders.exact.ExactMemo` kept across rounds (same draws, less enumeration).
     """
     rng = np.random.default_rng(rng)
     n = run.n_samples
@@ -49,7 +50,7 @@ def posterior_draws(run, assay, posterior, n_draws: int = DEFAULT_DRAWS, rng=Non
     out = (rng.random((n, n_draws), dtype=np.float32) < prob[:, None]).astype(np.uint8)
     if len(joint):
         lik_ptr, loglik = run.log_likelihood(assay)
-        exact = sample_exact(run, lik_ptr, loglik, comps, joint, n_draws, rng)
+        exact = sample_exact(run, lik_ptr, loglik, comps, joint, n_draws, rng, memo=memo)
         rows = np.concatenate([comps.samples_of(int(c)) for c in joint])
         out[rows] = exact[rows]
     return out.T  # draws x specimens, a view of the specimen-major array the planner reads

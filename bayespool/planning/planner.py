@@ -59,7 +59,7 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
          n_draws: int = DEFAULT_DRAWS, seed=None, min_information: float = DEFAULT_MIN_INFORMATION,
          relative_information: float = 0.0, max_linked: int = DEFAULT_MAX_LINKED,
          method: str = "auto", draws: np.ndarray | None = None, id_prefix: str = "B",
-         replicates_use_material: bool = False) -> Plan:
+         replicates_use_material: bool = False, exact_memo=None) -> Plan:
     """Plan up to ``tests`` pools of at most ``max_pool_size`` undecided specimens.
 
     Undecided: probability between the thresholds, or in no read pool yet (so a first stage at a
@@ -74,7 +74,9 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     decode stays exact); tests within one existing group are always allowed. ``min_information``:
     stop when the best remaining test is expected to tell fewer bits; ``relative_information``: or
     fewer than that fraction of the first pick. ``draws``: joint posterior draws (draws x specimens)
-    to use instead of making them. ``seed``: reproducible draws.
+    to use instead of making them. ``seed``: reproducible draws. ``exact_memo``: an
+    :class:`~bayespool.decoders.exact.ExactMemo` kept across rounds (the closed loop), so components
+    drawn before are not enumerated again (the same draws).
     """
     tests = check_count(tests, "tests", 1)
     max_pool_size = check_count(max_pool_size, "max_pool_size", 1)
@@ -112,7 +114,7 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
                          run.sources.get("assay"))
     rng = check_seed(seed)
     if draws is None:
-        draws = posterior_draws(run, assay, posterior, n_draws, rng, notes)
+        draws = posterior_draws(run, assay, posterior, n_draws, rng, notes, memo=exact_memo)
     elif draws.ndim != 2 or draws.shape[1] != run.n_samples:
         raise InputError(f"draws must be an array of draws x {run.n_samples} specimens",
                          parameters=("draws",))

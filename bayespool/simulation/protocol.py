@@ -34,6 +34,11 @@ class Tester:
         self.tests = 0
         self.rounds = 0
         self.draws = np.zeros(len(self._truth), dtype=np.int64)
+        self.last_ct = None  # Ct of each readout of the last round (NaN: no amplification)
+        self._ct = None
+        if assay.ct is not None:  # each positive's individual Ct, shared by all its pools
+            self._ct = np.full(len(self._truth), np.nan)
+            self._ct[self._truth] = assay.ct.draw_individual_ct(int(self._truth.sum()), rng)
 
     @property
     def n(self) -> int:
@@ -47,7 +52,24 @@ class Tester:
         self.tests += len(sizes)
         self.rounds += 1 if len(sizes) else 0
         np.add.at(self.draws, members, 1)
-        return self.assay.draw_readouts(sizes, positives.astype(np.int64), self.rng)
+        if self._ct is None:
+            return self.assay.draw_readouts(sizes, positives.astype(np.int64), self.rng)
+        self.last_ct = self._read_ct(sizes, owner, members)
+        return np.isfinite(self.last_ct)
+
+    def _read_ct(self, sizes, owner, members) -> np.ndarray:
+        """One Ct readout per pool from the load model (NaN where nothing amplifies)."""
+        m = self.assay.ct
+        s = m.cycles_per_doubling
+        amount = np.bincount(owner, weights=np.nan_to_num(np.exp2(-self._ct[members] / s)),
+                             minlength=len(sizes))
+        with np.errstate(divide="ignore"):
+            pool_ct = np.where(amount > 0, m.pool_shift(np.maximum(sizes, 1))
+                               - s * np.log2(np.where(amount > 0, amount, 1.0)), np.inf)
+        y = m.draw_readout_ct(pool_ct, self.rng)
+        false = (amount == 0) & (self.rng.random(len(sizes)) < 1.0 - self.assay.specificity)
+        y[false] = self.rng.uniform(m.false_positive_low, m.cutoff, int(false.sum()))
+        return y
 
     def outcome(self, calls: np.ndarray) -> Outcome:
         return Outcome(np.asarray(calls, dtype=bool), self.tests, self.rounds, self.draws.copy())

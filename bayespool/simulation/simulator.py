@@ -1,9 +1,11 @@
 """Closed-loop simulation: draw cohorts, play a protocol through the assay model, summarise.
 
-Statuses come from one random stream and readouts from another (both spawned from ``seed``), so a
-protocol's batch path and its per-run path see the same cohorts. Protocols with a ``run_batch`` method
-(vectorised over runs) use it unless ``batch=False``; the others are played one cohort at a time
-through a :class:`~bayespool.simulation.protocol.Tester`.
+Every cohort has its own two streams (statuses, readouts) spawned from ``seed``
+(:mod:`.streams`), so a protocol's batch path and its per-run path see the same cohorts and draw the
+same readouts, and a study gives the same numbers in-process, on N local workers or on a remote Dask
+cluster (:mod:`.engine`). Protocols with a ``run_batch`` method (vectorised over runs) use it unless
+``batch=False``; the others are played one cohort at a time through a
+:class:`~bayespool.simulation.protocol.Tester`.
 """
 from __future__ import annotations
 
@@ -16,10 +18,12 @@ import pandas as pd
 from ..assay import DEFAULT_ASSAY, Assay
 from ..errors import InputError
 from ..validation import check_count, check_open_probability, seed_sequence
-from .characteristics import ORDER, OperatingCharacteristics, summarise_runs
+from .characteristics import ORDER, OperatingCharacteristics
 from ..design.specimens import specimens
-from .cohort import Cohort, blocks, make_cohort
-from .protocol import Protocol, Tester
+from .cells import Cell
+from .cohort import Cohort, make_cohort
+from .engine import run_blocks
+from .protocol import Protocol
 from .protocols import accepted_options, make_protocol
 
 
@@ -36,6 +40,7 @@ class Simulation:
     expected: dict | None = None
     seed: int | None = None
     notes: list = field(default_factory=list)
+    setting: dict = field(default_factory=dict)  # what a study sweeps besides the parameters
 
     def to_dict(self) -> dict:
         out = {"scheme": self.scheme, **self.parameters, "prevalence": self.prevalence,
@@ -49,61 +54,14 @@ class Simulation:
         return out
 
 
-def _progress_bar(progress, total: int):
-    """A tqdm bar on stderr when asked; ``progress`` may be an existing bar to advance."""
-    if progress is None or progress is False:
-        return None, False
-    if hasattr(progress, "update"):
-        return progress, False
-    import sys
-
-    from tqdm import tqdm
-    return tqdm(total=total, unit="run", file=sys.stderr, leave=False), True
-
-
-def simulate(scheme, samples, *, prevalence: float | None = None, assay: Assay | None = None,
-             runs: int = 1000, seed=None, progress=False, batch: bool = True,
-             **options) -> Simulation:
-    """Simulate ``runs`` cohorts of ``samples`` (N, a samples file or Specimens) under a protocol.
-
-    ``scheme`` is a registered name (see :data:`bayespool.simulation.protocols.PROTOCOLS`) or a
-    :class:`Protocol`; ``options`` go to its constructor (``pool_size``, ``rows``, ``cols``, ...).
-    """
+def _cell(scheme, cohort: Cohort, assay: Assay, runs: int, seq, batch: bool, options,
+          setting=None) -> Cell:
     protocol = scheme if isinstance(scheme, Protocol) else make_protocol(scheme, **options)
-    cohort = samples if isinstance(samples, Cohort) else make_cohort(samples, prevalence)
-    assay = DEFAULT_ASSAY if assay is None else assay
-    runs = check_count(runs, "runs")
-    seq = seed_sequence(seed)
-    cohort_rng, test_rng = (np.random.default_rng(s) for s in seq.spawn(2))
-    bar, own_bar = _progress_bar(progress, runs)
-    frames = []
-    try:
-        for size in blocks(runs, cohort.n):
-            truth = cohort.draw(size, cohort_rng)
-            if batch and hasattr(protocol, "run_batch"):
-                out = protocol.run_batch(truth, assay, test_rng)
-                frames.append(summarise_runs(truth, out.calls, out.tests, out.rounds, out.draws))
-            else:
-                calls = np.empty_like(truth)
-                draws = np.empty(truth.shape, dtype=np.int64)
-                tests = np.empty(size, dtype=np.int64)
-                rounds = np.empty(size, dtype=np.int64)
-                for r in range(size):
-                    o = protocol.run(Tester(truth[r], assay, test_rng), cohort.prior)
-                    calls[r], draws[r], tests[r], rounds[r] = o.calls, o.draws, o.tests, o.rounds
-                    if bar is not None and size > 1:
-                        bar.update(1)
-                if bar is not None and size == 1:
-                    bar.update(1)
-                frames.append(summarise_runs(truth, calls, tests, rounds, draws))
-                continue
-            if bar is not None:
-                bar.update(size)
-    finally:
-        if own_bar:
-            bar.close()
-    frame = pd.concat(frames, ignore_index=True)
-    frame.insert(0, "run", np.arange(1, len(frame) + 1))
+    return Cell(protocol, cohort, assay, runs, seq, batch, dict(setting or {}))
+
+
+def _simulation(cell: Cell, frame: pd.DataFrame, seed) -> Simulation:
+    protocol, cohort, assay = cell.protocol, cell.cohort, cell.assay
     prev = cohort.prevalence
     expected = protocol.expected(cohort.n, prev, assay) if prev is not None else None
     notes = []
@@ -111,20 +69,53 @@ def simulate(scheme, samples, *, prevalence: float | None = None, assay: Assay |
         notes.append("closed forms need one prevalence for all specimens: not shown")
     return Simulation(protocol.name, protocol.parameters(), assay, prev,
                       OperatingCharacteristics.from_runs(frame), frame, expected,
-                      seed if isinstance(seed, (int, np.integer)) else None, notes)
+                      seed if isinstance(seed, (int, np.integer)) else None, notes,
+                      dict(cell.setting))
+
+
+def simulate(scheme, samples, *, prevalence: float | None = None, assay: Assay | None = None,
+             runs: int = 1000, seed=None, progress=False, batch: bool = True, client=None,
+             on_estimate=None, **options) -> Simulation:
+    """Simulate ``runs`` cohorts of ``samples`` (N, a samples file or Specimens) under a protocol.
+
+    Parameters
+    ----------
+    scheme : str or Protocol
+        A registered name (see :data:`bayespool.simulation.protocols.PROTOCOLS`) or a protocol
+        object; ``options`` go to its constructor (``pool_size``, ``rows``, ``cols``, ...).
+    seed : int, SeedSequence or None
+        Cohort ``r`` draws from ``SeedSequence(seed).spawn(runs)[r]``, so the numbers are the same
+        wherever and in whatever blocks the cohorts run.
+    client : dask.distributed.Client, optional
+        Play the cohorts as tasks on this Dask cluster (default: in this process).
+    progress : bool
+        A bar on stderr (cohorts done of total, time left).
+    on_estimate : callable, optional
+        Called with the pilot's :class:`~bayespool.simulation.engine.Estimate` before the study.
+    """
+    cohort = samples if isinstance(samples, Cohort) else make_cohort(samples, prevalence)
+    assay = DEFAULT_ASSAY if assay is None else assay
+    runs = check_count(runs, "runs")
+    cell = _cell(scheme, cohort, assay, runs, seed_sequence(seed), batch, options)
+    [frame] = run_blocks([cell], client=client, progress=progress, on_estimate=on_estimate)
+    return _simulation(cell, frame, seed)
 
 
 @dataclass
 class Sweep:
-    """Simulations over a grid of prevalences and/or pool sizes, and their table."""
+    """A study: simulations over schemes and settings (one cell each), and their table."""
 
     results: list
 
     @property
     def table(self) -> pd.DataFrame:
+        """One row per cell: scheme, setting (prevalence, assay, thresholds), the protocol's
+        parameters, each characteristic with its Monte Carlo standard error (``_se``), and the
+        closed form where one exists (``expected_``)."""
         rows = []
         for sim in self.results:
-            row = {"prevalence": sim.prevalence, **sim.parameters}
+            row = {"scheme": sim.scheme, "prevalence": sim.prevalence, **sim.setting,
+                   **sim.parameters}
             c = sim.characteristics
             for k in ORDER:
                 row[k] = c.estimate[k]
@@ -136,38 +127,94 @@ class Sweep:
         return pd.DataFrame(rows)
 
     def to_dict(self) -> list:
-        return [s.to_dict() for s in self.results]
+        return [{**s.to_dict(), **s.setting} for s in self.results]
 
 
-def sweep(scheme: str, samples, *, prevalences=None, pool_sizes=None, assay: Assay | None = None,
-          runs: int = 1000, seed=None, progress=False, **options) -> Sweep:
-    """Simulate every combination of ``prevalences`` and ``pool_sizes`` (either may be None).
+def _as_list(value):
+    if value is None:
+        return None
+    if isinstance(value, (str, Protocol, Assay)) or np.isscalar(value):
+        return [value]
+    return list(value)
 
-    Each point gets its own random streams spawned from ``seed`` (reproducible point by point).
+
+def _assay_items(assay, assays) -> list[tuple[str | None, Assay]]:
+    """(label, assay) pairs: ``assays`` (a list, or a dict label -> Assay) swept, else ``assay``."""
+    if assays is None:
+        return [(None, DEFAULT_ASSAY if assay is None else assay)]
+    if assay is not None:
+        raise InputError("give assay or assays, not both")
+    items = list(assays.items()) if isinstance(assays, dict) else \
+        [(a.describe(), a) for a in assays]
+    if not items:
+        raise InputError("assays is empty")
+    return [(str(label), a) for label, a in items]
+
+
+def _takes(scheme, option: str) -> bool:
+    if isinstance(scheme, Protocol):
+        return False
+    accepted = accepted_options(scheme)
+    return accepted is None or option in accepted
+
+
+SWEPT = ("pool_size", "negative_below", "positive_above")  # protocol options a study may sweep
+
+
+def sweep(scheme, samples, *, prevalences=None, pool_sizes=None, assay: Assay | None = None,
+          runs: int = 1000, seed=None, progress=False, assays=None, negative_below=None,
+          positive_above=None, client=None, on_estimate=None, **options) -> Sweep:
+    """A study: every scheme at every combination of the swept settings.
+
+    Parameters
+    ----------
+    scheme : str, Protocol or a list of them
+        One scheme or several (``["dorfman", "array", "bayes"]``), compared in one table.
+    prevalences, pool_sizes : lists, optional
+        Swept values (None: the single value in ``options``). A pool size sweeps only the schemes
+        that take one; so do ``negative_below`` and ``positive_above`` (one value or a list).
+    assays : list of Assay, or dict label -> Assay, optional
+        Swept assays (instead of ``assay``).
+    seed, client, progress, on_estimate
+        As in :func:`simulate`. Cells at the same prevalence share their cohorts: cohort ``r`` at
+        prevalence ``i`` draws from child ``r`` of ``SeedSequence(seed).spawn(prevalences)[i]``
+        whatever the scheme, pool size, assay or thresholds (common random numbers, so
+        differences between schemes are measured on the same specimens). All cells' cohorts go
+        out as one batch of tasks.
     """
-    prevs = [None] if prevalences is None else [check_open_probability(p, "prevalence") for p in prevalences]
-    sizes = [options.pop("pool_size", None)] if pool_sizes is None else \
-        [check_count(k, "pool_size") for k in pool_sizes]
-    if pool_sizes is not None:
-        accepted = accepted_options(scheme)
-        if accepted is not None and "pool_size" not in accepted:
-            raise InputError(f"the {scheme} scheme has no pool size to sweep over")
+    schemes = _as_list(scheme)
+    if not schemes:
+        raise InputError("give at least one scheme")
+    prevs = [None] if prevalences is None else [check_open_probability(p, "prevalence") for p in
+                                               _as_list(prevalences)]
+    swept = {"pool_size": [options.pop("pool_size", None)] if pool_sizes is None else
+             [check_count(k, "pool_size") for k in _as_list(pool_sizes)],
+             "negative_below": _as_list(negative_below) or [None],
+             "positive_above": _as_list(positive_above) or [None]}
+    for option, values in swept.items():
+        if len(values) > 1 and not any(_takes(s, option) for s in schemes):
+            names = ", ".join(str(getattr(s, "name", s)) for s in schemes)
+            what = "pool size" if option == "pool_size" else option.replace("_", " ")
+            raise InputError(f"the {names} scheme{'s' if len(schemes) > 1 else ''} "
+                             f"{'have' if len(schemes) > 1 else 'has'} no {what} to sweep over")
     spec = specimens(samples)
     if len(prevs) > 1 and spec.prior is not None and not np.isnan(spec.prior).any():
         raise InputError("every specimen has a prior in the samples file, so a sweep over "
                          "prevalences would change nothing")
-    points = list(itertools.product(prevs, sizes))
+    assay_items = _assay_items(assay, assays)
     runs = check_count(runs, "runs")
-    seeds = seed_sequence(seed).spawn(len(points))
-    bar, own_bar = _progress_bar(progress, runs * len(points))
-    results = []
-    try:
-        for (p, k), s in zip(points, seeds):
-            sim = simulate(scheme, spec, prevalence=p, assay=assay, runs=runs, seed=s,
-                           progress=bar if bar is not None else False, pool_size=k, **options)
-            sim.seed = seed if isinstance(seed, (int, np.integer)) else None
-            results.append(sim)
-    finally:
-        if own_bar:
-            bar.close()
-    return Sweep(results)
+    seeds = seed_sequence(seed).spawn(len(prevs))
+    cohorts = [make_cohort(spec, p) for p in prevs]
+    cells = []
+    for s in schemes:
+        values = [swept[o] if _takes(s, o) else [None] for o in SWEPT]
+        for i, (label, a) in itertools.product(range(len(prevs)), assay_items):
+            for combo in itertools.product(*values):
+                chosen = {o: v for o, v in zip(SWEPT, combo) if v is not None}
+                setting = {} if label is None else {"assay": label}
+                setting.update({o: v for o, v in chosen.items() if o != "pool_size"
+                                and len(swept[o]) > 1})
+                cells.append(_cell(s, cohorts[i], a, runs, seeds[i], True,
+                                   {**options, **chosen}, setting))
+    frames = run_blocks(cells, client=client, progress=progress, on_estimate=on_estimate)
+    return Sweep([_simulation(c, f, seed) for c, f in zip(cells, frames)])

@@ -14,6 +14,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ...decoders.exact import ExactMemo
 from ...defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
 from ...errors import InputError
 from ..protocol import Outcome, Protocol, Tester
@@ -32,11 +33,13 @@ class BayesianLoop(Protocol):
                  negative_below: float | None = None, positive_above: float | None = None,
                  method: str | None = None, max_draws: int | None = None,
                  n_draws: int | None = None, relative_information: float | None = None,
-                 max_rounds: int | None = None, seed=None):
+                 max_rounds: int | None = None, seed=None, remember: bool = True):
         """``tests``: tests per round (at most); ``method``: the decoder; ``max_draws``: material
         per specimen over the whole loop; ``relative_information``: a round keeps tests worth at
         least this fraction of its best one; ``seed``: the planner's draws (else from the
-        Tester)."""
+        Tester); ``remember``: keep exact enumerations of components across rounds and cohorts
+        (:class:`~bayespool.decoders.exact.ExactMemo`: the same numbers, several times faster; off
+        only to check that)."""
         from ...defaults import METHODS
         from ...planning import DEFAULT_MAX_POOL_SIZE
         from ...planning.draws import DEFAULT_DRAWS
@@ -58,6 +61,14 @@ class BayesianLoop(Protocol):
             raise InputError("the bayes scheme needs a pool size, tests per round and rounds >= 1")
         self.last_posterior = None
         self.undecided_at_end = 0
+        self.remember = bool(remember)
+        self._memo = ExactMemo() if self.remember else None
+
+    def __getstate__(self):  # the memo stays where it was filled (cheap to refill, can be large)
+        state = dict(self.__dict__)
+        state["_memo"] = ExactMemo() if self.remember else None
+        state["last_posterior"] = None
+        return state
 
     def parameters(self) -> dict:
         return {"max_pool_size": self.max_pool_size, "tests": self.tests_per_round,
@@ -78,7 +89,7 @@ class BayesianLoop(Protocol):
         for _ in range(self.max_rounds):
             post = decode(run, tester.assay, method=self.method,
                           negative_below=self.negative_below, positive_above=self.positive_above,
-                          seed=int(rng.integers(2**31)))
+                          seed=int(rng.integers(2**31)), exact_memo=self._memo)
             left = None
             if self.max_draws is not None:
                 left = np.maximum(self.max_draws - tester.draws, 0)
@@ -87,15 +98,23 @@ class BayesianLoop(Protocol):
                        max_pool_size=self.max_pool_size, max_draws=left,
                        n_draws=self.n_draws, seed=rng, min_information=0.0,
                        relative_information=self.relative_information,
-                       replicates_use_material=True)  # the Tester counts every reading
+                       replicates_use_material=True,  # the Tester counts every reading
+                       exact_memo=self._memo)
             if nxt.n_tests == 0:
                 break
             results = tester.read_round(nxt.pool_ptr, nxt.pool_members)
+            before, frame = run.n_pools, run.readout_ct
             run = nxt.extend(run, results)
+            if tester.last_ct is not None:  # a [ct] assay: decode the Cts too
+                new = pd.DataFrame({"pool": before + np.arange(len(results)),
+                                    "result": np.asarray(results, dtype=np.int64),
+                                    "ct": tester.last_ct})
+                run.readout_ct = new if frame is None else pd.concat([frame, new],
+                                                                     ignore_index=True)
         else:
             post = decode(run, tester.assay, method=self.method,
                           negative_below=self.negative_below, positive_above=self.positive_above,
-                          seed=int(rng.integers(2**31)))
+                          seed=int(rng.integers(2**31)), exact_memo=self._memo)
         self.last_posterior = post
         codes = post.call_codes()
         self.undecided_at_end = int(np.sum(codes == 1))

@@ -59,8 +59,13 @@ class DorfmanTesting(Protocol):
             calls[retest] = tester.read_round(*singles(retest))
         return tester.outcome(calls)
 
-    def run_batch(self, truth: np.ndarray, assay, rng: np.random.Generator) -> BatchOutcome:
-        """The same rule on many cohorts: ``truth`` is bool (runs, n)."""
+    def run_batch(self, truth: np.ndarray, assay, rng) -> BatchOutcome:
+        """The same rule on many cohorts: ``truth`` is bool (runs, n).
+
+        ``rng`` is one Generator for every run, or a sequence of Generators, one per run; with one
+        per run, each run draws exactly what ``run`` would draw from it (the study's spawned
+        per-cohort streams).
+        """
         truth = np.asarray(truth, dtype=bool)
         runs, n = truth.shape
         ptr, _ = dorfman_blocks(n, self.pool_size)
@@ -68,15 +73,15 @@ class DorfmanTesting(Protocol):
         positives = (np.add.reduceat(truth, ptr[:-1], axis=1, dtype=np.int64) if n
                      else np.zeros((runs, 0), dtype=np.int64))
         p_pool = assay.positive_probability(np.broadcast_to(sizes, positives.shape), positives)
-        pool_pos = rng.random(p_pool.shape) < p_pool
+        pool_pos = _uniforms(rng, p_pool.shape[1], runs) < p_pool
         member_pos = np.repeat(pool_pos, sizes, axis=1)
         retest = member_pos & np.repeat(sizes > 1, sizes)[None, :]
         calls = member_pos & ~retest
         idx = np.nonzero(retest)  # row-major: the order a per-run loop would read them in
         ones = np.ones(len(idx[0]), dtype=np.int64)
         p_alone = assay.positive_probability(ones, truth[idx].astype(np.int64))
-        calls[idx] = rng.random(len(ones)) < p_alone
         n_retest = retest.sum(axis=1)
+        calls[idx] = _uniforms(rng, n_retest, runs) < p_alone
         tests = len(sizes) + n_retest
         rounds = (1 if len(sizes) else 0) + (n_retest > 0)
         draws = 1 + retest.astype(np.int64)
@@ -89,3 +94,14 @@ class DorfmanTesting(Protocol):
         out["source"] = "Kim et al. 2007" + (" with Se(k, d)" if assay.sensitivity.depends_on_count()
                                              else "")
         return out
+
+
+def _uniforms(rng, count, runs: int) -> np.ndarray:
+    """Uniforms for ``runs`` runs: ``count`` per run (an int: a (runs, count) array) or
+    ``count[r]`` for run r (an array: flat, row-major). One Generator serves every run in turn;
+    a sequence of Generators gives each run its own."""
+    if isinstance(rng, np.random.Generator):
+        return rng.random((runs, count) if np.isscalar(count) else int(np.sum(count)))
+    if np.isscalar(count):
+        return np.stack([g.random(count) for g in rng]) if runs else np.zeros((0, count))
+    return np.concatenate([g.random(int(c)) for g, c in zip(rng, count)] + [np.zeros(0)])
