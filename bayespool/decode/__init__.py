@@ -16,6 +16,7 @@ from typing import Callable
 
 import numpy as np
 
+from ..decisions import DecisionRule
 from ..defaults import METHODS
 from ..errors import InputError
 from ..run import Run
@@ -217,21 +218,31 @@ def choose_decoders(run: Run, comps: Components, method: str, exact_limit: int =
 
 # ---- the entry point
 def decode(run: Run, assay, method: str = "auto",
-           negative_below: float = DEFAULT_NEGATIVE_BELOW,
-           positive_above: float = DEFAULT_POSITIVE_ABOVE,
+           negative_below: float | None = None,
+           positive_above: float | None = None,
            seed=None, exact_limit: int = EXACT_LIMIT, damping: float = DAMPING,
            tolerance: float = TOLERANCE, max_sweeps: int = MAX_SWEEPS,
-           progress: bool | None = None, gibbs_options: dict | None = None) -> Posterior:
+           progress: bool | None = None, gibbs_options: dict | None = None, *,
+           target_sensitivity: float | None = None, max_false_discovery: float | None = None,
+           expectations: bool = True, model_check: bool = True) -> Posterior:
     """Posterior P(x_i = 1 | readouts) for every specimen of ``run`` under ``assay``.
 
     ``method`` is one of :data:`METHODS`. ``damping``, ``tolerance`` and ``max_sweeps`` steer belief
     propagation (see :mod:`bayespool.decode.bp`); ``progress`` shows sweeps on stderr (default: when
     it is a terminal and the run is large). ``gibbs_options`` go to the Gibbs sampler (chains,
     max_sweeps, prevalence_prior, ...; see :meth:`bayespool.decode.gibbs.GibbsSampler.sample`).
+
+    Calls: ``negative_below`` / ``positive_above`` (default 0.01 / 0.99 unless a target covers
+    that side) and the batch targets ``target_sensitivity`` / ``max_false_discovery``
+    (:mod:`bayespool.decisions`). ``expectations`` adds what the batch can expect of its calls
+    (``Posterior.batch``), ``model_check`` the posterior predictive check of the readouts
+    (``Posterior.model_check``, :mod:`bayespool.modelcheck`).
     """
     if method not in METHODS or (method not in ("auto", "gibbs") and method not in PART_DECODERS):
         raise InputError(f"unknown method {method!r} (choose one of {', '.join(METHODS)})")
-    lo, hi = check_thresholds(negative_below, positive_above)
+    rule = DecisionRule(negative_below, positive_above, target_sensitivity, max_false_discovery)
+    lo, hi = check_thresholds(DEFAULT_NEGATIVE_BELOW if rule.low is None else rule.low,
+                              DEFAULT_POSITIVE_ABOVE if rule.high is None else rule.high)
     _check_bp_options(damping, tolerance, max_sweeps)
     if run.n_samples == 0:
         raise InputError("there are no samples to decode: the layout is empty and no samples file "
@@ -249,7 +260,8 @@ def decode(run: Run, assay, method: str = "auto",
         if method != "gibbs":
             post.warnings.append("an unknown prevalence links every sample: decoded by the Gibbs "
                                  "sampler")
-        return post
+        return _judge(run, assay, post, rule, (lik_ptr, loglik), None, seed, expectations,
+                      model_check)
     comps = components(run)
     choice = choose_decoders(run, comps, method, exact_limit)
     options = {"exact_limit": exact_limit, "damping": damping, "tolerance": tolerance,
@@ -268,7 +280,25 @@ def decode(run: Run, assay, method: str = "auto",
             choice.method[part.unconverged] = redo.method
             part.warnings.append(_not_converged(part, comps, f"re-decoded by {redo.method}"))
             parts.append(redo)
-    return _assemble(run, comps, choice, parts, lo, hi)
+    post = _assemble(run, comps, choice, parts, lo, hi)
+    return _judge(run, assay, post, rule, (lik_ptr, loglik), comps, seed, expectations,
+                  model_check)
+
+
+def _judge(run, assay, post: Posterior, rule, lik, comps, seed, expectations: bool,
+           model_check: bool) -> Posterior:
+    """Calls by ``rule``, what the batch can expect of them, and the model check."""
+    post.rule = rule
+    if expectations:
+        from ..decisions import batch_expectation, batch_warnings
+        post.batch = batch_expectation(run, assay, post, lik=lik, comps=comps).summary()
+        post.warnings.extend(batch_warnings(post.batch, rule))
+    if model_check:
+        from ..modelcheck import check_model
+        check = check_model(run, assay, post, seed=seed)
+        post.model_check = check.summary()
+        post.warnings.extend(check.warnings)
+    return post
 
 
 def _check_bp_options(damping, tolerance, max_sweeps):
