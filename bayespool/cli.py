@@ -229,13 +229,13 @@ def _read_assay_or_default(args):
 
 def _add_design(sub):
     p = sub.add_parser("design", help="make a pooling layout (dorfman, array, kautz-singleton, "
-                       "random) or find the best Dorfman pool size",
+                       "random, code) or find the best Dorfman pool size",
                        description="Write a pooling layout (pool,sample) and print its properties: "
                        "pools, pool sizes, pools per specimen and the disjunctness it guarantees. "
                        "With --optimize, the Dorfman pool size with the fewest expected tests. "
                        + CAUTION)
     p.add_argument("--scheme", required=True,
-                   choices=("dorfman", "array", "kautz-singleton", "random"))
+                   choices=("dorfman", "array", "kautz-singleton", "random", "code"))
     p.add_argument("--samples", metavar="N|CSV",
                    help="number of specimens (IDs S0001...) or a samples file (sample column)")
     p.add_argument("--out", metavar="CSV", help="layout to write: pool,sample")
@@ -256,6 +256,12 @@ def _add_design(sub):
     p.add_argument("--pools", type=int, metavar="T",
                    help="random: number of pools (default: the fewest within --max-pool-size)")
     p.add_argument("--seed", type=int, metavar="N", help="random: seed (reproducible layouts)")
+    p.add_argument("--errors", type=int, default=1, metavar="E",
+                   help="code: wrong readouts to tolerate when one specimen is positive "
+                   "(default: %(default)s)")
+    p.add_argument("--code", choices=("hamming", "extended-hamming", "bch", "extended-bch"),
+                   help="code: the code family (default: Hamming or extended Hamming for one "
+                   "error, BCH for more), shortened to the fewest pools")
     p.add_argument("--optimize", action="store_true",
                    help="dorfman: best pool size for --prevalence (and --assay)")
     p.add_argument("--prevalence", type=_probability, metavar="P",
@@ -274,6 +280,8 @@ def _design_options(args) -> dict:
     if args.scheme == "kautz-singleton":
         return {"positives": args.positives, "q": args.q, "dimension": args.dimension,
                 "length": args.length}
+    if args.scheme == "code":
+        return {"errors": args.errors, "code": args.code}
     return {"pools_per_sample": args.pools_per_sample, "pools": args.pools, "seed": args.seed}
 
 
@@ -315,6 +323,10 @@ def _run_design(args):
         print(json.dumps(summary, indent=2))
     else:
         print("\n".join(design.properties.lines()))
+        if args.scheme == "code" and design.n_samples <= 64:
+            for t in range(design.n_pools):
+                print(f"  pool {design.pool_ids[t]}: "
+                      + " ".join(map(str, design.sample_ids[design.members(t)])))
         print(f"wrote {args.out}")
     return 0
 
