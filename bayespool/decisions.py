@@ -32,7 +32,6 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
-from .decode.exact import _component_log_weights
 from .defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
 from .errors import InputError
 
@@ -205,56 +204,6 @@ def decide(probability, rule: DecisionRule, tested=None) -> Decision:
 
 # ---- joint distributions of the batch's counts
 @njit(cache=True)
-def _popcount(x):
-    c = 0
-    while x:
-        x &= x - 1
-        c += 1
-    return c
-
-
-@njit(cache=True)
-def _component_counts(comp_list, csptr, csamples, cpptr, cpools, sample_ptr, sample_pools,
-                      lik_ptr, loglik, log_p, log_q, codes, out_ptr, out2d, b_ptr, out_b):
-    """Per component: the joint distribution of (positives among negative calls, positives among
-    the rest) as a flat (na + 1) x (nr + 1) block, and of positives among positive calls."""
-    n_pools = len(lik_ptr) - 1
-    d = np.zeros(n_pools, dtype=np.int32)
-    is_read = np.zeros(n_pools, dtype=np.bool_)
-    for ci in range(len(comp_list)):
-        c = comp_list[ci]
-        s0, m, lw = _component_log_weights(c, csptr, csamples, cpptr, cpools, sample_ptr,
-                                           sample_pools, lik_ptr, loglik, log_p, log_q, d,
-                                           is_read)
-        neg_mask = np.int64(0)
-        pos_mask = np.int64(0)
-        for b in range(m):
-            code = codes[csamples[s0 + b]]
-            if code == 0:
-                neg_mask |= np.int64(1) << b
-            elif code == 2:
-                pos_mask |= np.int64(1) << b
-        na = _popcount(neg_mask)
-        nr = m - na
-        top = lw.max()
-        z = 0.0
-        base = out_ptr[ci]
-        for g in range(len(lw)):
-            if lw[g] == -np.inf:
-                continue
-            w = np.exp(lw[g] - top)
-            z += w
-            state = g ^ (g >> 1)
-            a = _popcount(state & neg_mask)
-            out2d[base + a * (nr + 1) + (_popcount(state) - a)] += w
-            out_b[b_ptr[ci] + _popcount(state & pos_mask)] += w
-        for j in range(out_ptr[ci], out_ptr[ci + 1]):
-            out2d[j] /= z
-        for j in range(b_ptr[ci], b_ptr[ci + 1]):
-            out_b[j] /= z
-
-
-@njit(cache=True)
 def poisson_binomial(p, tol=1e-18):
     """Distribution of a sum of independent Bernoulli(p_i): returns (dist, offset), tails below
     ``tol`` trimmed as they form (the cost follows the support, not the number of terms)."""
@@ -415,7 +364,8 @@ def batch_expectation(run, assay, posterior, codes=None, *, lik=None, comps=None
         np.cumsum(nb + 1, out=b_ptr[1:])
         out2d, out_b = np.zeros(int(out_ptr[-1])), np.zeros(int(b_ptr[-1]))
         prior = np.asarray(run.prior, dtype=float)
-        _component_counts(exact, comps.sample_ptr, comps.samples, comps.pool_ptr, comps.pools,
+        from .decode.exact_counts import component_counts
+        component_counts(exact, comps.sample_ptr, comps.samples, comps.pool_ptr, comps.pools,
                           run.sample_ptr, run.sample_pools, lik_ptr, loglik, np.log(prior),
                           np.log1p(-prior), codes, out_ptr, out2d, b_ptr, out_b)
         for j in range(len(exact)):

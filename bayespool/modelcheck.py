@@ -1,9 +1,15 @@
 """Does the assay model fit the readouts? A posterior predictive check (Gelman, Meng & Stern 1996,
 Statistica Sinica 6:733).
 
-Every probability bayespool reports rests on the assay file. This check draws statuses from the
-joint posterior, readouts of every read pool from the assay model given those statuses (replicates
-included), and compares with the readouts at hand, by pool size:
+Every probability bayespool reports rests on the assay file. This check replicates the readouts
+from the model and compares them with the readouts at hand, by pool size. Readouts of pools of
+several specimens are replicated from statuses drawn from the priors; readouts of specimens tested
+alone from statuses drawn from the joint posterior given the pooled readouts only, with the pooled
+readouts held as observed. Follow-up tests exist because a pool read positive; conditioning on the
+pooled readouts keeps that selection out of the reference distribution, and leaving the single
+readouts out of the posterior keeps the check from using them twice (a partial predictive check,
+Bayarri & Berger 2000). Pools chosen adaptively from earlier pooled readouts are replicated from
+the priors all the same (an approximation). The statistics:
 
 - positive readouts of pools of that size (two-sided);
 - positive pools whose members all read negative alone (every member tested alone, no positive;
@@ -150,7 +156,8 @@ def _hint(kind: str, observed: float, expected: float, k: int) -> str:
         return (f"the sensitivity in pools of {k} may be lower than the assay file says "
                 "(a stronger dilution effect), or the specificity of single tests lower")
     if observed > expected:
-        return "the specificity may be lower than the assay file says"
+        return ("the specificity may be lower than the assay file says, or the prevalence higher "
+                "than the priors")
     return f"the sensitivity in pools of {k} may be lower than the assay file says"
 
 

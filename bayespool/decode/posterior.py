@@ -115,6 +115,25 @@ class Posterior:
         codes = self.call_codes()
         return np.flatnonzero((codes == INCONCLUSIVE) | (codes == UNTESTED))
 
+    def problems(self) -> list[str]:
+        """Why the result should not be relied on as it stands (``--strict`` exits 3 on any):
+        a decoder that did not converge, readouts that do not fit the assay model, targets that
+        leave specimens undecided."""
+        out = []
+        if self.diagnostics.get("converged") is False:
+            out.append("the decoder did not converge on some linked groups (see the warnings)")
+        check = self.model_check
+        if check and check.get("warnings"):
+            out.append(f"the readouts do not fit the assay model (posterior predictive "
+                       f"p = {check['p_value']:.3g})")
+        if self.decision_rule.has_targets:
+            c = self.counts()
+            left = c["inconclusive"] + c["untested"]
+            if left:
+                out.append(f"{left} specimen(s) stay undecided: the readouts at hand cannot "
+                           "meet the targets for every specimen (plan more tests)")
+        return out
+
     def probability_of(self, sample_id) -> float:
         idx = np.flatnonzero(self.sample_ids == sample_id)
         if not len(idx):

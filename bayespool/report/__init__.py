@@ -29,6 +29,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     ``notes`` are extra lines for the run summary (e.g. that the data is invented)."""
     from .calibration import calibration_section, observed_points
     from .calls import calls_section, map_section
+    from .expectations import expectations_section
     from .groups import groups_section
     from .page import page
     from .planned import plan_section
@@ -54,6 +55,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         add("summary", "Run", run_section(run, notes))
     if posterior is not None:
         add("decoder", "Decoder", decoder_section(posterior, run))
+        add("expectations", "Expectations", expectations_section(posterior))
         mapped = map_section(posterior, run)
         add("plate-map" if 'id="plate-map"' in mapped else "ranked",
             "Plate map" if 'id="plate-map"' in mapped else "Ranked chart", mapped)
