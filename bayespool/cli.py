@@ -33,6 +33,51 @@ def _probability(text: str) -> float:
         raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
 
 
+def _result_word(text: str):
+    word, sep, meaning = text.rpartition("=")
+    if not sep or not word.strip() or meaning.strip().lower() not in ("positive", "negative",
+                                                                      "skip"):
+        raise argparse.ArgumentTypeError(f"expected WORD=positive, WORD=negative or WORD=skip, "
+                                         f"got {text!r}")
+    return word.strip(), meaning.strip().lower()
+
+
+def _add_result_words(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--result-word", type=_result_word, action="append", default=[],
+                   metavar="WORD=MEANING", help="read a laboratory's own result word as positive, "
+                   "negative or skip (repeatable; adds to the usual words and the assay file's "
+                   "[results] table)")
+
+
+def _result_words(args, assay=None) -> dict:
+    """The laboratory's own words: the assay file's [results] table, then --result-word."""
+    from .results import MEANINGS
+    words = {}
+    for key, value in (assay.results if assay is not None else {}).items():
+        if key in MEANINGS and isinstance(value, list):
+            words.update(dict.fromkeys(value, key))
+        else:
+            words[key] = value
+    words.update(dict(getattr(args, "result_word", [])))
+    return words
+
+
+INPUT_OPTIONS = ("layout", "readouts", "samples", "assay", "validation")
+
+
+def _check_outputs(args, more: dict | None = None, **outputs) -> None:
+    """Before any work: every output (option -> path, plus ``more``: description -> path) lies in
+    an existing folder and is neither an input of the command nor another output."""
+    from .io import check_outputs
+    inputs = {}
+    for name in INPUT_OPTIONS:
+        value = getattr(args, name, None)
+        if isinstance(value, str) and not value.strip().isdigit():
+            inputs[f"--{name}"] = value
+    named = {f"--{k.replace('_', '-')}": v for k, v in outputs.items()}
+    check_outputs({**named, **(more or {})}, inputs)
+
+
 def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) -> None:
     from .defaults import NEGATIVE_BELOW, POSITIVE_ABOVE, PREVALENCE
     p.add_argument("--layout", required=True, metavar="CSV", help="pool,sample memberships")
@@ -52,6 +97,7 @@ def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) 
     _add_targets(p)
     p.add_argument("--seed", type=int, default=None, metavar="N",
                    help="random seed for sampling decoders (reproducible runs)")
+    _add_result_words(p)
 
 
 def _add_targets(p) -> None:
@@ -71,20 +117,75 @@ def _targets(args) -> dict:
 
 
 def _load_inputs(args):
+    """The run and the assay; the note about a default assay comes only once the inputs read
+    cleanly, so bad input gets exactly one line on stderr."""
     from .assay import DEFAULT_ASSAY, Assay
     from .run import Run
-    if args.assay:
-        assay = Assay.read(args.assay)
-    else:
-        assay = DEFAULT_ASSAY
-        _note(args, f"no --assay given: assuming {assay.describe()}")
-    run = Run.read(args.layout, args.readouts, args.samples, prevalence=args.prevalence)
+    assay = Assay.read(args.assay) if args.assay else DEFAULT_ASSAY
+    run = Run.read(args.layout, args.readouts, args.samples, prevalence=args.prevalence,
+                   result_words=_result_words(args, assay))
     run.sources["assay"] = args.assay
+    if not args.assay:
+        _note(args, f"no --assay given: assuming {assay.describe()}")
     return run, assay
 
 
 def _note(args, text: str) -> None:
     print(f"bayespool {args.command}: note: {text}", file=sys.stderr)
+
+
+# ---- assay
+def _add_assay(sub):
+    p = sub.add_parser("assay", help="show what an assay file implies: the model and Se(k, d)",
+                       description="Print an assay file's model and the sensitivity it implies "
+                       "for every pool size k and number of positive members d = 1..k (for a "
+                       "[ct] assay, integrated over the individual Cts of the positives). "
+                       + CAUTION)
+    p.add_argument("assay_file", metavar="ASSAY.toml", help="the assay file")
+    p.add_argument("--pool-sizes", type=_int_list, default=None, metavar="K,K,...",
+                   help="pool sizes to tabulate (default: 1,2,4,8,16,32, or a table's own sizes)")
+    p.add_argument("--plot", metavar="FILE", help="also draw the curve (.svg or .png)")
+    p.add_argument("--json", action="store_true",
+                   help='print {"specificity": ..., "sensitivity": [{"pool_size", "positives", '
+                   '"value"}, ...]}')
+    return p
+
+
+def _run_assay(args):
+    from .assay import Assay, sensitivity_table
+    plot = args.plot
+    if plot:
+        from .io import check_output_path
+        check_output_path(plot)
+        if not plot.lower().endswith((".svg", ".png")):
+            raise InputError(f"--plot {plot!r}: the file name must end in .svg or .png")
+        if os.path.abspath(plot) == os.path.abspath(args.assay_file):
+            raise InputError("--plot must not overwrite the assay file")
+    assay = Assay.read(args.assay_file)
+    table = sensitivity_table(assay, args.pool_sizes)
+    if plot:
+        from .report.plots import write_sensitivity_plot
+        write_sensitivity_plot(assay, plot, table["pool_size"].unique())
+    if args.json:
+        out = {"specificity": assay.specificity,
+               "sensitivity": [{"pool_size": int(r.pool_size), "positives": int(r.positives),
+                                "value": float(r.value)} for r in table.itertuples()]}
+        print(json.dumps(out, indent=2))
+        return 0
+    print(f"{args.assay_file}: {assay.describe()}")
+    sizes = list(table["pool_size"].unique())
+    shown = min(max(sizes), 8)
+    print(f"Se(k, d): P(a readout amplifies | pool of k, d positive members)"
+          + (f"; d > {shown} in --json" if max(sizes) > shown else ""))
+    print("     k " + "".join(f"{'d=' + str(d):>9}" for d in range(1, shown + 1)))
+    for k in sizes:
+        vals = table[table["pool_size"] == k].set_index("positives")["value"]
+        print(f"{k:>6} " + "".join(f"{vals[d]:>9.4f}" if d <= k else " " * 9
+                                   for d in range(1, shown + 1)))
+    print(f"no positive member: P(amplifies) = 1 - Sp = {1 - assay.specificity:.4g}")
+    if plot:
+        print(f"wrote {plot}")
+    return 0
 
 
 # ---- decode
@@ -160,10 +261,8 @@ def _print_gibbs(post) -> None:
 
 def _run_decode(args):
     from .decode import decode
-    from .io import check_output_path, write_frame
-    check_output_path(args.out)
-    if args.report:
-        check_output_path(args.report)
+    from .io import write_frame
+    _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
     post = decode(run, assay, method=args.method, seed=args.seed, damping=args.damping,
                   tolerance=args.tolerance, max_sweeps=args.max_sweeps,
@@ -343,9 +442,8 @@ def _design_options(args) -> dict:
 
 def _run_design(args):
     from .design import make_design, optimal_dorfman
-    from .io import check_output_path, write_frame
-    if args.out:
-        check_output_path(args.out)
+    from .io import write_frame
+    _check_outputs(args, out=args.out)
     summary = {}
     if args.optimize:
         if args.scheme != "dorfman":
@@ -460,12 +558,11 @@ def _add_simulate(sub):
 
 def _run_simulate(args):
     from .design.base import check_count
-    from .io import check_output_path, write_frame
+    from .io import write_frame
     from .run import check_prevalence
     from .simulate import simulate, sweep
     from .simulate.protocols import accepted_options, make_protocol
-    if args.out:
-        check_output_path(args.out)
+    _check_outputs(args, out=args.out)
     prevs, sizes = args.prevalence, args.pool_size
     accepted = accepted_options(args.scheme)  # an unknown scheme fails here, before any work
     for option, value in (("pool_size", sizes), ("rows", args.rows), ("cols", args.cols),
@@ -632,12 +729,12 @@ def _add_calibrate(sub):
                    help="do not write the sensitivity plot (PNG and SVG beside the assay file)")
     p.add_argument("--report", metavar="HTML",
                    help="also write an offline HTML report of the fit and the fitted assay")
+    _add_result_words(p)
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
 
 
 def _run_calibrate(args):
-    from .io import check_output_path
     from .calibrate import calibrate_runs, calibrate_validation
     from .calibrate.plot import figure, plot_paths, write_plots
     from .calibrate.validation import ValidationData
@@ -655,20 +752,18 @@ def _run_calibrate(args):
         if name in fixed:
             raise InputError(f"--fix gives {name!r} twice")
         fixed[name] = value
-    check_output_path(args.out)
-    if args.report:
-        check_output_path(args.report)
     plots = {} if args.no_plot else plot_paths(args.out)
-    for path in plots.values():
-        check_output_path(path)
+    _check_outputs(args, {f"the {kind.upper()} plot beside --out": str(path)
+                          for kind, path in plots.items()}, out=args.out, report=args.report)
     run = None
+    words = _result_words(args)
     if args.validation:
-        data = ValidationData.read(args.validation)
+        data = ValidationData.read(args.validation, words=words)
         result = calibrate_validation(data, args.model, fixed, level=args.level,
                                       intervals=args.intervals, gof_draws=args.gof_draws,
                                       seed=args.seed)
     else:
-        run = Run.read(args.layout, args.readouts, args.samples)
+        run = Run.read(args.layout, args.readouts, args.samples, result_words=words)
         result = calibrate_runs(run, args.model, fixed, level=args.level,
                                 intervals=args.intervals)
     fig = figure(result) if plots else None
@@ -736,12 +831,10 @@ def _add_plan(sub):
 
 def _run_plan(args):
     from .decode import decode
-    from .io import check_output_path, write_frame
+    from .io import write_frame
     from .plan import plan
     report = args.report
-    check_output_path(args.out)
-    if report:
-        check_output_path(report)
+    _check_outputs(args, out=args.out, report=report)
     run, assay = _load_inputs(args)
     if run.n_samples == 0:
         raise InputError("no samples: the layout is empty and no --samples file lists any",
@@ -775,6 +868,7 @@ def _run_plan(args):
 
 
 COMMANDS = {
+    "assay": (_add_assay, _run_assay),
     "decode": (_add_decode, _run_decode),
     "demo": (_add_demo, _run_demo),
     "design": (_add_design, _run_design),

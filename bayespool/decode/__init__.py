@@ -238,6 +238,15 @@ def decode(run: Run, assay, method: str = "auto",
     (``Posterior.batch``), ``model_check`` the posterior predictive check of the readouts
     (``Posterior.model_check``, :mod:`bayespool.modelcheck`).
     """
+    from ..ct_evidence import ct_notes
+    post = _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
+                   tolerance, max_sweeps, progress, gibbs_options)
+    post.warnings.extend(ct_notes(run, assay))
+    return post
+
+
+def _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
+            tolerance, max_sweeps, progress, gibbs_options) -> Posterior:
     if method not in METHODS or (method not in ("auto", "gibbs") and method not in PART_DECODERS):
         raise InputError(f"unknown method {method!r} (choose one of {', '.join(METHODS)})")
     rule = DecisionRule(negative_below, positive_above, target_sensitivity, max_false_discovery)
