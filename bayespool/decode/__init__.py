@@ -239,17 +239,17 @@ def decode(run: Run, assay, method: str = "auto",
     (``Posterior.model_check``, :mod:`bayespool.modelcheck`).
     """
     from ..ct_evidence import ct_notes
-    post = _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
-                   tolerance, max_sweeps, progress, gibbs_options)
+    rule = DecisionRule(negative_below, positive_above, target_sensitivity, max_false_discovery)
+    post = _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max_sweeps,
+                   progress, gibbs_options, expectations, model_check)
     post.warnings.extend(ct_notes(run, assay))
     return post
 
 
-def _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
-            tolerance, max_sweeps, progress, gibbs_options) -> Posterior:
+def _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max_sweeps,
+            progress, gibbs_options, expectations, model_check) -> Posterior:
     if method not in METHODS or (method not in ("auto", "gibbs") and method not in PART_DECODERS):
         raise InputError(f"unknown method {method!r} (choose one of {', '.join(METHODS)})")
-    rule = DecisionRule(negative_below, positive_above, target_sensitivity, max_false_discovery)
     lo, hi = check_thresholds(DEFAULT_NEGATIVE_BELOW if rule.low is None else rule.low,
                               DEFAULT_POSITIVE_ABOVE if rule.high is None else rule.high)
     _check_bp_options(damping, tolerance, max_sweeps)
