@@ -167,29 +167,36 @@ def _n_draws(n_samples: int, draws: int | None) -> int:
     return int(max(100, min(DEFAULT_DRAWS, MEMORY // max(n_samples, 1))))
 
 
-def _given_pooled(run, assay, single, n_draws, rng, notes, method) -> np.ndarray:
+def _given_pooled(run, assay, single, n_draws, rng, notes, posterior=None) -> np.ndarray:
     """Joint draws of the statuses given the readouts of pools of several specimens only (the
-    single readouts left out), draws x specimens."""
+    single readouts left out), draws x specimens. ``posterior`` is reused when nothing is left
+    out."""
     from dataclasses import replace
 
     from .decode import decode
     from .plan.draws import posterior_draws
+    if posterior is not None and not single.any():
+        return np.ascontiguousarray(posterior_draws(run, assay, posterior, n_draws, rng, notes,
+                                                    every_group=True))
     pooled = replace(run, n_positive=np.where(single, 0, run.n_positive),
                      n_negative=np.where(single, 0, run.n_negative), notes=[])
-    m = "auto" if method not in ("exact", "bp", "gibbs") else method
-    post = decode(pooled, assay, method=m, seed=int(rng.integers(2**31)), expectations=False,
-                  model_check=False)
+    post = decode(pooled, assay, method="auto", seed=int(rng.integers(2**31)),
+                  expectations=False, model_check=False)
     x = posterior_draws(pooled, assay, post, n_draws, rng, notes, every_group=True)
     return np.ascontiguousarray(x)
 
 
-def check_model(run, assay, posterior, *, draws: int | None = None, seed=None) -> ModelCheck:
-    """Posterior predictive check of ``run``'s readouts under ``assay`` and ``posterior``.
+def check_model(run, assay, posterior=None, *, draws: int | None = None,
+                seed=None) -> ModelCheck:
+    """Predictive check of ``run``'s readouts under ``assay``.
 
     Parameters
     ----------
-    run, assay, posterior
-        The decoded run.
+    run, assay
+        The run and the assay model to check.
+    posterior
+        The run's posterior, reused when the run has no single readouts to predict (otherwise the
+        check decodes the pooled readouts alone).
     draws
         Replicated data sets (default 1000, fewer for runs above 100,000 specimens so that the
         status draws stay within 100 MB).
@@ -229,7 +236,7 @@ def check_model(run, assay, posterior, *, draws: int | None = None, seed=None) -
     n_draws = _n_draws(run.n_samples, draws)
     notes: list = []
     x_prior = (rng.random((n_draws, run.n_samples)) < run.prior[None, :]).astype(np.uint8)
-    x_given = _given_pooled(run, assay, single, n_draws, rng, notes, posterior.method)
+    x_given = _given_pooled(run, assay, single, n_draws, rng, notes, posterior)
     rep = np.zeros((n_draws, len(sizes), 3), dtype=np.int64)
     _replicates(x_prior, x_given, int(rng.integers(2**31)), r_obs, reads, q_ptr, q,
                 run.pool_ptr, run.pool_members, cls, kind_ok, single_of, ind_reads, rep)
