@@ -730,6 +730,9 @@ def _add_calibrate(sub):
     p.add_argument("--report", metavar="HTML",
                    help="also write an offline HTML report of the fit and the fitted assay")
     _add_result_words(p)
+    p.add_argument("--allow-unidentified", action="store_true",
+                   help="past runs: write the fit even when the data cannot identify it (it is "
+                   "marked so in the file); without this such a fit is refused with the reason")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
 
@@ -766,6 +769,8 @@ def _run_calibrate(args):
         run = Run.read(args.layout, args.readouts, args.samples, result_words=words)
         result = calibrate_runs(run, args.model, fixed, level=args.level,
                                 intervals=args.intervals)
+        if not args.allow_unidentified:
+            result.check_identified()
     fig = figure(result) if plots else None
     result.assay.write(args.out)
     if plots:
