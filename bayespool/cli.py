@@ -134,6 +134,44 @@ def _note(args, text: str) -> None:
     print(f"bayespool {args.command}: note: {text}", file=sys.stderr)
 
 
+def _add_worklist_options(p) -> None:
+    g = p.add_argument_group("worklist (transfers that build the pools; needs wells in --samples)")
+    g.add_argument("--worklist", metavar="CSV",
+                   help="also write the transfers: source_plate,source_well,destination_plate,"
+                   "destination_well,volume_ul,sample,pool")
+    g.add_argument("--pool-volume", type=float, default=200.0, metavar="UL",
+                   help="microlitres in each pool; every member gives UL / k (default: "
+                   "%(default)s)")
+    g.add_argument("--destination-plate-size", type=int, choices=(96, 384), default=96,
+                   help="wells per destination plate (default: %(default)s)")
+    g.add_argument("--destination-prefix", default="POOLS", metavar="NAME",
+                   help="destination plates are NAME1, NAME2, ... (default: %(default)s)")
+    g.add_argument("--reserve-wells", default=None, metavar="WELLS",
+                   help="comma-separated wells left empty on every destination plate for "
+                   "controls, e.g. G12,H12")
+
+
+def _write_worklist(args, layout, samples, skip_pools=()):
+    from .io import write_frame
+    from .worklist import build_worklist
+    reserve = ([w.strip() for w in args.reserve_wells.split(",") if w.strip()]
+               if args.reserve_wells else None)
+    try:
+        wl = build_worklist(layout, samples, pool_volume=args.pool_volume,
+                            plate_size=args.destination_plate_size,
+                            prefix=args.destination_prefix, reserve=reserve,
+                            skip_pools=skip_pools)
+    except InputError as exc:
+        msg = str(exc)
+        for param, flag in (("pool_volume", "--pool-volume"),
+                             ("destination_plate_size", "--destination-plate-size"),
+                             ("destination_prefix", "--destination-prefix")):
+            msg = msg.replace(param, flag)
+        raise InputError(msg) from None
+    write_frame(wl.frame, args.worklist)
+    return wl
+
+
 # ---- assay
 def _add_assay(sub):
     p = sub.add_parser("assay", help="show what an assay file implies: the model and Se(k, d)",
@@ -394,8 +432,12 @@ def _add_design(sub):
     p.add_argument("--max-pool-size", type=int, metavar="K",
                    help="no pool may hold more than K specimens")
     p.add_argument("--pool-size", type=int, metavar="K", help="dorfman: specimens per pool")
+    p.add_argument("--fill", choices=("columns", "rows"),
+                   help="dorfman on plates (samples file with plate and well): pool neighbouring "
+                   "wells down the columns (A1, B1, ...; default) or along the rows (A1, A2, ...)")
     p.add_argument("--rows", type=int, metavar="R",
-                   help="array: rows per grid (default 8 x 12, or near-square for few specimens)")
+                   help="array: rows per grid (default 8 x 12, or near-square for few specimens; "
+                   "on plates, the plate's own rows and columns, or R x C tiles laid on it)")
     p.add_argument("--cols", type=int, metavar="C", help="array: columns per grid")
     p.add_argument("--positives", type=int, metavar="D",
                    help="kautz-singleton: positives to single out without test error")
@@ -424,12 +466,13 @@ def _add_design(sub):
                    help="with --optimize: the cheapest pool size whose sensitivity (closed form) "
                    "is at least S")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    _add_worklist_options(p)
     return p
 
 
 def _design_options(args) -> dict:
     if args.scheme == "dorfman":
-        return {"pool_size": args.pool_size}
+        return {"pool_size": args.pool_size, "fill": args.fill}
     if args.scheme == "array":
         return {"rows": args.rows, "cols": args.cols}
     if args.scheme == "kautz-singleton":
@@ -443,7 +486,7 @@ def _design_options(args) -> dict:
 def _run_design(args):
     from .design import make_design, optimal_dorfman
     from .io import write_frame
-    _check_outputs(args, out=args.out)
+    _check_outputs(args, out=args.out, worklist=args.worklist)
     summary = {}
     if args.optimize:
         if args.scheme != "dorfman":
@@ -473,15 +516,26 @@ def _run_design(args):
                 print(json.dumps(summary, indent=2))
             return 0
         raise InputError("give both --samples N|CSV and --out LAYOUT.csv")
-    design = make_design(args.scheme, args.samples, max_pool_size=args.max_pool_size,
+    from .design.specimens import specimens
+    spec = specimens(args.samples)
+    if args.worklist and (spec.table is None or "well" not in spec.table.columns):
+        raise InputError("--worklist needs --samples to be a samples file with a well column "
+                         "(and plate)")
+    design = make_design(args.scheme, spec, max_pool_size=args.max_pool_size,
                          **_design_options(args))
+    wl = _write_worklist(args, design.layout, spec.table) if args.worklist else None
     write_frame(design.layout, args.out)
     if args.json:
         summary.update(design.properties.to_dict())
         summary["out"] = args.out
+        if wl is not None:
+            summary["worklist"] = dict(wl.summary(), out=args.worklist)
         print(json.dumps(summary, indent=2))
     else:
         print("\n".join(design.properties.lines()))
+        if wl is not None:
+            print("\n".join(wl.lines()))
+            print(f"wrote {args.worklist}")
         if args.scheme == "code" and design.n_samples <= 64:
             for t in range(design.n_pools):
                 print(f"  pool {design.pool_ids[t]}: "
@@ -831,6 +885,7 @@ def _add_plan(sub):
     p.add_argument("--report", metavar="HTML",
                    help="also write an offline HTML report with the planned pools")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    _add_worklist_options(p)
     return p
 
 
@@ -839,7 +894,9 @@ def _run_plan(args):
     from .io import write_frame
     from .plan import plan
     report = args.report
-    _check_outputs(args, out=args.out, report=report)
+    _check_outputs(args, out=args.out, report=report, worklist=args.worklist)
+    if args.worklist and not args.samples:
+        raise InputError("--worklist needs --samples with the specimens' plate and well")
     run, assay = _load_inputs(args)
     if run.n_samples == 0:
         raise InputError("no samples: the layout is empty and no --samples file lists any",
@@ -849,6 +906,12 @@ def _run_plan(args):
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked)
     frame = result.to_frame()
+    wl = None
+    if args.worklist:
+        replicates = frame.loc[frame["kind"] == "replicate", "pool"].unique()
+        samples = run.samples.copy()
+        samples["sample"] = run.sample_ids[samples.index.to_numpy()]
+        wl = _write_worklist(args, frame, samples, skip_pools=replicates)
     write_frame(frame, args.out)
     if report:
         from .report import write_report
@@ -858,6 +921,8 @@ def _run_plan(args):
     if args.json:
         summary = result.summary()
         summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe()})
+        if wl is not None:
+            summary["worklist"] = dict(wl.summary(), out=args.worklist)
         print(json.dumps(summary, indent=2))
     elif result.decided:
         print(f"every sample is decided ({run.n_samples} samples): no test to plan; wrote a "
@@ -869,6 +934,9 @@ def _run_plan(args):
         print(f"planned {result.n_tests} pools ({len(result.pool_members)} memberships), "
               f"expected information {result.total_information:.2f} bits; wrote {args.out}"
               + (f" and {report}" if report else ""))
+        if wl is not None:
+            print("\n".join(wl.lines()))
+            print(f"wrote {args.worklist}")
     return 0
 
 
