@@ -62,20 +62,34 @@ def _result_words(args, assay=None) -> dict:
     return words
 
 
-INPUT_OPTIONS = ("layout", "readouts", "samples", "assay", "validation")
+INPUT_OPTIONS = {"layout": "--layout", "readouts": "--readouts", "samples": "--samples",
+                 "assay": "--assay", "validation": "--validation", "assay_file": "ASSAY.toml",
+                 "pools": "--pools", "controls": "--controls"}
+
+
+def _inputs(args) -> dict:
+    """The command's input files as given: option -> path (a number for --samples is no file)."""
+    out = {}
+    for name, label in INPUT_OPTIONS.items():
+        value = getattr(args, name, None)
+        if isinstance(value, str) and not value.strip().isdigit():
+            out[label] = value
+    return out
+
+
+def _audit(args):
+    """The audit trail of this command (argv, version, seed, date, inputs' size and SHA-256)."""
+    from .audit import make_audit
+    return make_audit(_inputs(args), argv=getattr(args, "argv", None),
+                      seed=getattr(args, "seed", None))
 
 
 def _check_outputs(args, more: dict | None = None, **outputs) -> None:
     """Before any work: every output (option -> path, plus ``more``: description -> path) lies in
     an existing folder and is neither an input of the command nor another output."""
     from .io import check_outputs
-    inputs = {}
-    for name in INPUT_OPTIONS:
-        value = getattr(args, name, None)
-        if isinstance(value, str) and not value.strip().isdigit():
-            inputs[f"--{name}"] = value
     named = {f"--{k.replace('_', '-')}": v for k, v in outputs.items()}
-    check_outputs({**named, **(more or {})}, inputs)
+    check_outputs({**named, **(more or {})}, _inputs(args))
 
 
 def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) -> None:
@@ -83,7 +97,10 @@ def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) 
     p.add_argument("--layout", required=True, metavar="CSV", help="pool,sample memberships")
     p.add_argument("--readouts", required=readouts_required, metavar="CSV",
                    help="pool,result[,ct] readouts; several rows of one pool are replicates")
-    p.add_argument("--samples", metavar="CSV", help="sample[,prior,plate,well]")
+    p.add_argument("--samples", metavar="CSV", help="sample[,prior,plate,well,control]")
+    p.add_argument("--controls", metavar="CSV",
+                   help="control wells: plate,well,kind[,id,ct_min,ct_max] with kind positive, "
+                   "negative or extraction; a failed control leaves its plate's readouts out")
     p.add_argument("--assay", metavar="TOML",
                    help="assay model (default: constant Se 0.95, Sp 0.99, with a note)")
     p.add_argument("--prevalence", type=_probability, default=PREVALENCE, metavar="P",
@@ -120,10 +137,12 @@ def _load_inputs(args):
     """The run and the assay; the note about a default assay comes only once the inputs read
     cleanly, so bad input gets exactly one line on stderr."""
     from .assay import DEFAULT_ASSAY, Assay
-    from .run import Run
+    from .controls import read_run
     assay = Assay.read(args.assay) if args.assay else DEFAULT_ASSAY
-    run = Run.read(args.layout, args.readouts, args.samples, prevalence=args.prevalence,
-                   result_words=_result_words(args, assay))
+    run, args.control_check = read_run(args.layout, args.readouts, args.samples,
+                                       getattr(args, "controls", None),
+                                       prevalence=args.prevalence,
+                                       result_words=_result_words(args, assay))
     run.sources["assay"] = args.assay
     if not args.assay:
         _note(args, f"no --assay given: assuming {assay.describe()}")
@@ -131,7 +150,9 @@ def _load_inputs(args):
 
 
 def _note(args, text: str) -> None:
-    print(f"bayespool {args.command}: note: {text}", file=sys.stderr)
+    """A note for stderr, printed when the command succeeds: input that turns out to be bad gets
+    its one error line and nothing else."""
+    args.pending_notes.append(f"bayespool {args.command}: note: {text}")
 
 
 def _add_worklist_options(p) -> None:
@@ -193,12 +214,9 @@ def _run_assay(args):
     from .assay import Assay, sensitivity_table
     plot = args.plot
     if plot:
-        from .io import check_output_path
-        check_output_path(plot)
+        _check_outputs(args, plot=plot)
         if not plot.lower().endswith((".svg", ".png")):
             raise InputError(f"--plot {plot!r}: the file name must end in .svg or .png")
-        if os.path.abspath(plot) == os.path.abspath(args.assay_file):
-            raise InputError("--plot must not overwrite the assay file")
     assay = Assay.read(args.assay_file)
     table = sensitivity_table(assay, args.pool_sizes)
     if plot:
@@ -302,22 +320,31 @@ def _run_decode(args):
     from .io import write_frame
     _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
+    audit = _audit(args) if args.report or args.json else None
     post = decode(run, assay, method=args.method, seed=args.seed, damping=args.damping,
                   tolerance=args.tolerance, max_sweeps=args.max_sweeps,
                   gibbs_options=_gibbs_options(args), model_check=not args.no_model_check,
                   **_targets(args))
+    check = args.control_check
+    if check is not None:
+        from .controls import mark_specimens
+        mark_specimens(post, run, check)
     write_frame(post.to_frame(), args.out)
     if args.report:
         from .report import write_report
-        write_report(args.report, run=run, assay=assay, posterior=post)
-    for w in post.warnings:
+        write_report(args.report, run=run, assay=assay, posterior=post, controls=check,
+                     audit=audit)
+    for w in post.warnings + (check.messages if check is not None else []):
         _note(args, w)
     problems = post.problems()
     if args.json:
         summary = post.summary()
+        summary["audit"] = audit.to_dict()
         summary.update({"pools": run.n_pools, "readouts": run.n_readouts, "out": args.out,
                         "assay": assay.describe(), "reliable": not problems})
-        print(json.dumps(summary, indent=2))
+        if check is not None:
+            summary["controls"] = check.summary()
+        print(json.dumps(_json_ready(summary), indent=2))
     else:
         c = post.counts()
         print(f"{run.n_samples} samples, {run.n_pools} pools, {run.n_readouts} readouts, "
@@ -326,6 +353,8 @@ def _run_decode(args):
               (f", {c['untested']} untested" if c["untested"] else ""))
         _print_batch(post)
         _print_gibbs(post)
+        if check is not None:
+            print("\n".join(check.lines()))
         print(f"wrote {args.out}" + (f" and {args.report}" if args.report else ""))
     if args.strict and problems:
         for why in problems:
@@ -528,9 +557,10 @@ def _run_design(args):
     if args.json:
         summary.update(design.properties.to_dict())
         summary["out"] = args.out
+        summary["audit"] = _audit(args).to_dict()
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
-        print(json.dumps(summary, indent=2))
+        print(json.dumps(_json_ready(summary), indent=2))
     else:
         print("\n".join(design.properties.lines()))
         if wl is not None:
@@ -645,7 +675,8 @@ def _run_simulate(args):
             from .simulate.simulator import Sweep
             write_frame(Sweep([sim]).table, args.out)
         if args.json:
-            print(json.dumps(_json_ready(sim.to_dict()), indent=2))
+            print(json.dumps(_json_ready({**sim.to_dict(), "audit": _audit(args).to_dict()}),
+                             indent=2))
         else:
             _print_simulation(sim, sim.characteristics.table())
     else:
@@ -656,7 +687,8 @@ def _run_simulate(args):
         if args.out:
             write_frame(table, args.out)
         if args.json:
-            print(json.dumps(_json_ready({"points": result.to_dict()}), indent=2))
+            print(json.dumps(_json_ready({"points": result.to_dict(),
+                                          "audit": _audit(args).to_dict()}), indent=2))
         else:
             _print_sweep(result, table)
     if args.out and not args.json:
@@ -696,8 +728,16 @@ LABELS = {"tests_per_sample": "tests per specimen", "sensitivity": "sensitivity"
           "draws_per_sample": "draws per specimen"}
 
 
+def _param_text(value) -> str:
+    """A protocol parameter for people: ``none`` rather than Python's None."""
+    if value is None:
+        return "none"
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
 def _print_simulation(sim, table) -> None:
-    params = ", ".join(f"{k} {v}" for k, v in sim.parameters.items())
+    params = ", ".join(f"{k.replace('_', ' ')} {_param_text(v)}"
+                       for k, v in sim.parameters.items())
     c = sim.characteristics
     prev = f"prevalence {sim.prevalence:g}" if sim.prevalence is not None else "per-specimen priors"
     print(f"{sim.scheme}" + (f" ({params})" if params else "") + f", {c.specimens} specimens, "
@@ -787,8 +827,27 @@ def _add_calibrate(sub):
     p.add_argument("--allow-unidentified", action="store_true",
                    help="past runs: write the fit even when the data cannot identify it (it is "
                    "marked so in the file); without this such a fit is refused with the reason")
+    p.add_argument("--ct-cutoff", type=float, default=40.0, metavar="CT",
+                   help="validation with a ct column: the run's Ct cutoff (default: %(default)s)")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
+
+
+def _run_calibrate_ct(args, table):
+    """A validation file with Cts: fit the [ct] load model (bayespool.calibrate.ct_fit)."""
+    from .calibrate.ct_fit import calibrate_ct
+    result = calibrate_ct(table, cutoff=args.ct_cutoff)
+    result.assay.write(args.out)
+    if args.json:
+        summary = result.summary()
+        summary["out"] = args.out
+        print(json.dumps(summary, indent=2))
+    else:
+        print(result.text())
+        print(f"wrote {args.out} (the Ct fit writes no sensitivity plot; `bayespool assay "
+              f"{args.out} --plot FILE` draws the implied curve)")
+        print(CAUTION)
+    return 0
 
 
 def _run_calibrate(args):
@@ -815,6 +874,11 @@ def _run_calibrate(args):
     run = None
     words = _result_words(args)
     if args.validation:
+        from .io import read_table
+        table = read_table(args.validation, ["pool_size", "positives", "result"], "validation")
+        if "ct" in table.header:
+            return _run_calibrate_ct(args, table)
+    if args.validation:
         data = ValidationData.read(args.validation, words=words)
         result = calibrate_validation(data, args.model, fixed, level=args.level,
                                       intervals=args.intervals, gof_draws=args.gof_draws,
@@ -825,6 +889,7 @@ def _run_calibrate(args):
                                 intervals=args.intervals)
         if not args.allow_unidentified:
             result.check_identified()
+    audit = _audit(args) if args.report or args.json else None
     fig = figure(result) if plots else None
     result.assay.write(args.out)
     if plots:
@@ -833,13 +898,14 @@ def _run_calibrate(args):
     if args.report:
         from .report import write_report
         write_report(args.report, run=run if not args.validation else None, assay=result.assay,
-                     calibration=result, title="bayespool calibration report")
+                     calibration=result, title="bayespool calibration report", audit=audit)
         written.append(args.report)
     if args.json:
         for w in result.warnings:
             _note(args, w)
         summary = result.summary()
         summary["out"] = args.out
+        summary["audit"] = audit.to_dict()
         summary["plots"] = {k: str(v) for k, v in plots.items()}
         if args.report:
             summary["report"] = args.report
@@ -898,6 +964,7 @@ def _run_plan(args):
     if args.worklist and not args.samples:
         raise InputError("--worklist needs --samples with the specimens' plate and well")
     run, assay = _load_inputs(args)
+    audit = _audit(args) if report or args.json else None
     if run.n_samples == 0:
         raise InputError("no samples: the layout is empty and no --samples file lists any",
                          args.layout)
@@ -915,15 +982,20 @@ def _run_plan(args):
     write_frame(frame, args.out)
     if report:
         from .report import write_report
-        write_report(report, run=run, assay=assay, posterior=post, plan=frame)
-    for w in post.warnings + result.notes:
+        write_report(report, run=run, assay=assay, posterior=post, plan=frame,
+                     controls=args.control_check, worklist=wl, audit=audit)
+    check = args.control_check
+    for w in post.warnings + result.notes + (check.messages if check is not None else []):
         _note(args, w)
     if args.json:
         summary = result.summary()
-        summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe()})
+        summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe(),
+                        "audit": audit.to_dict()})
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
-        print(json.dumps(summary, indent=2))
+        if check is not None:
+            summary["controls"] = check.summary()
+        print(json.dumps(_json_ready(summary), indent=2))
     elif result.decided:
         print(f"every sample is decided ({run.n_samples} samples): no test to plan; wrote a "
               f"header only to {args.out}")
@@ -965,14 +1037,19 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    args.argv = list(sys.argv[1:] if argv is None else argv)
     if args.command is None:
         parser.print_help()
         return 2
     _, run = COMMANDS[args.command]
+    args.pending_notes = []
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", UserWarning)
-            return run(args)
+            code = run(args)
+        for note in args.pending_notes:
+            print(note, file=sys.stderr)
+        return code
     except InputError as exc:
         print(f"bayespool {args.command}: error: {exc}", file=sys.stderr)
         return 2

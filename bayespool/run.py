@@ -6,7 +6,6 @@ nothing is dense. Replicate readouts of a pool are folded into counts of positiv
 """
 from __future__ import annotations
 
-import math
 import warnings
 from dataclasses import dataclass, field
 
@@ -267,7 +266,7 @@ class Run(PoolIncidence):
                     lines = ", ".join(map(str, rd.lines(odd[:10])))
                     more = f" and {len(odd) - 10} more" if len(odd) > 10 else ""
                     notes.append(f"{rd.path}: {len(odd)} negative readout(s) carry a Ct value "
-                                 f"(line{'s' if len(odd) > 1 else ''} {lines}{more}); they are "
+                                 f"({rd.unit}{'s' if len(odd) > 1 else ''} {lines}{more}); they are "
                                  "read as negative: check the result or the Ct")
                 ct_frame = pd.DataFrame({"pool": pidx[keep], "result": res[keep],
                                          "ct": vals[keep]})
@@ -287,6 +286,17 @@ class Run(PoolIncidence):
         return Run(self.sample_ids, self.pool_ids, self.prior, self.pool_ptr, self.pool_members,
                    self.sample_ptr, self.sample_pools, npos, nneg, self.samples, self.readout_ct,
                    dict(self.sources), list(self.notes))
+
+    def sample_column(self, name: str) -> np.ndarray | None:
+        """A column of the samples file aligned with ``sample_ids`` (blank for specimens it does
+        not list), or None when the file or the column is absent."""
+        if self.samples is None or name not in self.samples.columns:
+            return None
+        out = np.full(self.n_samples, "", dtype=object)
+        idx = self.samples.index.to_numpy()
+        ok = (idx >= 0) & (idx < self.n_samples)
+        out[idx[ok]] = self.samples[name].astype(str).str.strip().to_numpy()[ok]
+        return out
 
     def layout_frame(self) -> pd.DataFrame:
         """The layout as a DataFrame (pool, sample), one row per membership."""

@@ -10,9 +10,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from ..wells import FORMATS, parse_well, plate_format
+from ..wells import FORMATS, parse_well, plate_format  # noqa: F401 (plate_format re-exported)
 from . import formatting as fmt
-from ..plates import FORMATS, parse_well, plate_format  # noqa: F401 (re-exported)
 from .escape import text
 from .markup import el
 from .palette import styles
@@ -88,6 +87,7 @@ def plate_html(plate: Plate, sample_ids, probability, calls, colours) -> str:
             content = el("span", text(fmt.prob_short(p)), class_="wp")
             if mark:
                 content += el("span", mark, class_="wm", aria_hidden="true")
+            content = el("a", content, href=f"#why-{int(i)}", class_="why-link")
             cells.append(el("td", content, class_=f"well call-{call}", style=colours[i], title=tip,
                             data_sample=sample_ids[i], data_value=fmt.exact(p)))
         body.append(el("tr", "".join(cells)))
