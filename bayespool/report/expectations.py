@@ -6,10 +6,10 @@ import pandas as pd
 from .escape import text
 from .markup import el, facts, frame_table, section
 
-_ROWS = (("expected_missed", "Missed positives among negative calls", "{:.2f}"),
-         ("expected_false_positives", "False positives among positive calls", "{:.2f}"),
-         ("expected_sensitivity", "Batch sensitivity of the calls", "{:.3f}"),
-         ("expected_false_discovery_rate", "False discovery rate of the positive calls", "{:.3f}"))
+_ROWS = (("expected_missed", "Expected missed positives among negative calls", "{:.2f}"),
+         ("expected_false_positives", "Expected false positives among positive calls", "{:.2f}"),
+         ("expected_sensitivity", "Expected batch sensitivity of the calls", "{:.3f}"),
+         ("expected_false_discovery_rate", "Expected false discovery rate of the positive calls", "{:.3f}"))
 
 
 def expectations_section(posterior) -> str:
