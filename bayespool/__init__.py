@@ -13,6 +13,8 @@ _EXPORTS = {
     "read_assay": "bayespool.assay", "decode": "bayespool.decode",
     "Posterior": "bayespool.decode.posterior", "InputError": "bayespool.errors",
     "ImpossibleEvidenceError": "bayespool.errors", "Run": "bayespool.run",
+    "estimate_prevalence": "bayespool.surveillance", "read_pools": "bayespool.surveillance",
+    "fit_regression": "bayespool.surveillance.regression",
 }
 
 __all__ = sorted(_EXPORTS)
