@@ -19,6 +19,23 @@ CAUTION = ("Statistical decision support, not a diagnostic device: confirm resul
            "professional.")
 
 
+# Library errors name the Python parameter; the command line shows the flag that sets it. Flags
+# that are not "--" + the parameter with "-" for "_" are listed here, in this one place.
+FLAGS = {
+    "n_draws": "--posterior-draws",
+    'gibbs_options["chains"]': "--chains",
+    'gibbs_options["max_sweeps"]': "--gibbs-sweeps",
+    'gibbs_options["prevalence_prior"]': "--prevalence-prior",
+    'fixed["specificity"]': "--fix specificity=VALUE",
+    "result_words": "--result-word",
+}
+
+
+def flag(parameter: str) -> str:
+    """The command-line flag that sets a library parameter."""
+    return FLAGS.get(parameter) or "--" + parameter.replace("_", "-")
+
+
 class _Parser(argparse.ArgumentParser):
     """argparse with a one-line usage error (exit 2)."""
 
@@ -316,7 +333,7 @@ def _print_gibbs(post) -> None:
 
 
 def _run_decode(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import write_frame
     _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
@@ -532,7 +549,7 @@ def _run_design(args):
         if args.assay:
             from .assay import Assay
             assay = Assay.read(args.assay)
-        opt = optimal_dorfman(args.prevalence, assay, args.max_pool_size,
+        opt = optimal_dorfman(args.prevalence, assay, max_pool_size=args.max_pool_size,
                               target_sensitivity=args.target_sensitivity)
         if not opt.meets_target:
             _note(args, f"no pool size reaches a sensitivity of {args.target_sensitivity:g} "
@@ -647,11 +664,10 @@ def _add_simulate(sub):
 
 
 def _run_simulate(args):
-    from .design.base import check_count
     from .io import write_frame
-    from .run import check_prevalence
-    from .simulate import simulate, sweep
-    from .simulate.protocols import accepted_options, make_protocol
+    from .validation import check_count, check_open_probability
+    from .simulation import simulate, sweep
+    from .simulation.protocols import accepted_options, make_protocol
     _check_outputs(args, out=args.out)
     prevs, sizes = args.prevalence, args.pool_size
     accepted = accepted_options(args.scheme)  # an unknown scheme fails here, before any work
@@ -667,18 +683,18 @@ def _run_simulate(args):
     for k in sizes or [None]:
         make_protocol(args.scheme, pool_size=k, **options)  # checks the options before any work
     for p in prevs or []:
-        check_prevalence(p)
-    check_count(args.runs, "--runs")
+        check_open_probability(p, "prevalence")
+    check_count(args.runs, "runs")
     from .design.specimens import specimens
     args.samples = specimens(args.samples)
     assay = _read_assay_or_default(args)
     progress = sys.stderr.isatty()
     if (prevs is None or len(prevs) == 1) and (sizes is None or len(sizes) == 1):
-        sim = simulate(args.scheme, args.samples, prevs[0] if prevs else None, assay,
+        sim = simulate(args.scheme, args.samples, prevalence=prevs[0] if prevs else None, assay=assay,
                        runs=args.runs, seed=args.seed, progress=progress,
                        pool_size=sizes[0] if sizes else None, **options)
         if args.out:
-            from .simulate.simulator import Sweep
+            from .simulation.simulator import Sweep
             write_frame(Sweep([sim]).table, args.out)
         if args.json:
             print(json.dumps(_json_ready({**sim.to_dict(), "audit": _audit(args).to_dict()}),
@@ -686,8 +702,9 @@ def _run_simulate(args):
         else:
             _print_simulation(sim, sim.characteristics.table())
     else:
-        result = sweep(args.scheme, args.samples, prevs, sizes if sizes and len(sizes) > 1
-                       else None, assay, runs=args.runs, seed=args.seed, progress=progress,
+        result = sweep(args.scheme, args.samples, prevalences=prevs,
+                       pool_sizes=sizes if sizes and len(sizes) > 1 else None, assay=assay,
+                       runs=args.runs, seed=args.seed, progress=progress,
                        **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}), **options)
         table = result.table
         if args.out:
@@ -840,8 +857,8 @@ def _add_calibrate(sub):
 
 
 def _run_calibrate_ct(args, table):
-    """A validation file with Cts: fit the [ct] load model (bayespool.calibrate.ct_fit)."""
-    from .calibrate.ct_fit import calibrate_ct
+    """A validation file with Cts: fit the [ct] load model (bayespool.calibration.ct_fit)."""
+    from .calibration.ct_fit import calibrate_ct
     result = calibrate_ct(table, cutoff=args.ct_cutoff)
     result.assay.write(args.out)
     if args.json:
@@ -857,9 +874,9 @@ def _run_calibrate_ct(args, table):
 
 
 def _run_calibrate(args):
-    from .calibrate import calibrate_runs, calibrate_validation
-    from .calibrate.plot import figure, plot_paths, write_plots
-    from .calibrate.validation import ValidationData
+    from .calibration import calibrate_runs, calibrate_validation
+    from .calibration.plot import figure, plot_paths, write_plots
+    from .calibration.validation import ValidationData
     from .run import Run
     if args.validation and (args.layout or args.readouts or args.samples):
         raise InputError("give either --validation or --layout/--readouts, not both")
@@ -926,7 +943,7 @@ def _run_calibrate(args):
 # ---- plan
 def _add_plan(sub):
     from .defaults import METHODS
-    from .plan import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
+    from .planning import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
     p = sub.add_parser("plan", help="the next most informative pools for the undecided samples",
                        description="Choose the next batch of pools by expected information gain "
                        "about the undecided samples, given the readouts so far. An empty layout "
@@ -962,9 +979,9 @@ def _add_plan(sub):
 
 
 def _run_plan(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import write_frame
-    from .plan import plan
+    from .planning import plan
     report = args.report
     _check_outputs(args, out=args.out, report=report, worklist=args.worklist)
     if args.worklist and not args.samples:
@@ -975,7 +992,7 @@ def _run_plan(args):
         raise InputError("no samples: the layout is empty and no --samples file lists any",
                          args.layout)
     post = decode(run, assay, method=args.method, seed=args.seed, **_targets(args))
-    result = plan(run, assay, post, tests=args.tests, max_pool_size=args.max_pool_size,
+    result = plan(run, assay, posterior=post, tests=args.tests, max_pool_size=args.max_pool_size,
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked)
     frame = result.to_frame()
@@ -1250,7 +1267,7 @@ def main(argv=None) -> int:
             print(note, file=sys.stderr)
         return code
     except InputError as exc:
-        print(f"bayespool {args.command}: error: {exc}", file=sys.stderr)
+        print(f"bayespool {args.command}: error: {exc.renamed(flag)}", file=sys.stderr)
         return 2
     except OSError as exc:
         name = getattr(exc, "filename", None)

@@ -328,8 +328,8 @@ def batch_expectation(run, assay, posterior, codes=None, *, lik=None, comps=None
     ``codes`` are the call codes (default: the posterior's own); ``lik`` = (lik_ptr, loglik) and
     ``comps`` (the run's components) are reused when the caller has them.
     """
-    from .decode.exact import EXACT_LIMIT
-    from .decode.graph import components
+    from .decoders.exact import EXACT_LIMIT
+    from .decoders.graph import components
     codes = np.asarray(posterior.call_codes() if codes is None else codes, dtype=np.int8)
     p = np.asarray(posterior.probability, dtype=float)
     n = len(p)
@@ -364,7 +364,7 @@ def batch_expectation(run, assay, posterior, codes=None, *, lik=None, comps=None
         np.cumsum(nb + 1, out=b_ptr[1:])
         out2d, out_b = np.zeros(int(out_ptr[-1])), np.zeros(int(b_ptr[-1]))
         prior = np.asarray(run.prior, dtype=float)
-        from .decode.exact_counts import component_counts
+        from .decoders.exact_counts import component_counts
         component_counts(exact, comps.sample_ptr, comps.samples, comps.pool_ptr, comps.pools,
                           run.sample_ptr, run.sample_pools, lik_ptr, loglik, np.log(prior),
                           np.log1p(-prior), codes, out_ptr, out2d, b_ptr, out_b)
@@ -398,7 +398,7 @@ def batch_expectation(run, assay, posterior, codes=None, *, lik=None, comps=None
         if (independent & alone).any():
             basis.append(f"{int((independent & alone).sum())} specimen(s) alone in their group "
                          "(exact)")
-    from .decode.counts import convolve_counts
+    from .decoders.counts import convolve_counts
     dist2d, off = convolve2d(parts2d)
     dist_b, b_off = convolve_counts(parts_b)
     return BatchExpectation(dist2d, off, dist_b, int(b_off), int(neg.sum()), int(pos.sum()),

@@ -173,8 +173,8 @@ def _given_pooled(run, assay, single, n_draws, rng, notes, posterior=None) -> np
     out."""
     from dataclasses import replace
 
-    from .decode import decode
-    from .plan.draws import posterior_draws
+    from .decoders import decode
+    from .planning.draws import posterior_draws
     if posterior is not None and not single.any():
         return np.ascontiguousarray(posterior_draws(run, assay, posterior, n_draws, rng, notes,
                                                     every_group=True))

@@ -23,8 +23,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity  # noqa: E402
-from bayespool.simulate.protocol import Tester  # noqa: E402
-from bayespool.simulate.protocols.bayes import BayesianLoop  # noqa: E402
+from bayespool.simulation.protocol import Tester  # noqa: E402
+from bayespool.simulation.protocols.bayes import BayesianLoop  # noqa: E402
 
 
 def kim_dorfman(p: float, se: float, sp: float, k: int) -> dict:
@@ -67,7 +67,7 @@ def best_dorfman_assay(p, assay, kmax=64):
 def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05), array_runs=2000, **targets):
     """Markdown rows: individual and Dorfman (closed forms), the array (simulated, cohorts of 960)
     and the Bayesian loop with the batch targets (simulated)."""
-    from bayespool.simulate import simulate
+    from bayespool.simulation import simulate
     assays = {"constant": Assay(0.99, ConstantSensitivity(0.95)),
               "dilution": Assay(0.99, DilutionSensitivity(0.95, 40.0, 1.5))}
     rows = ["| assay | prevalence | scheme | tests per specimen | sensitivity | specificity |",

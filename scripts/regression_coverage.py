@@ -20,7 +20,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from bayespool.assay import Assay, ConstantSensitivity  # noqa: E402
-from bayespool.decode import decode  # noqa: E402
+from bayespool.decoders import decode  # noqa: E402
 from bayespool.surveillance.regression import fit_regression  # noqa: E402
 from tests.test_surveillance_regression import array_run, dorfman_run  # noqa: E402
 

@@ -16,9 +16,9 @@ import pytest
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
 from bayespool.decisions import (DecisionRule, batch_expectation, decide, target_negatives,
                                  target_positives)
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.errors import InputError
-from bayespool.plan import plan
+from bayespool.planning import plan
 from bayespool.run import Run
 
 NOISY = Assay(0.99, ConstantSensitivity(0.95))
@@ -170,7 +170,7 @@ def test_untested_specimens_are_untested_at_every_prevalence(prevalence):
             assert frame.loc[s, "call_rule"] == "no-readout"
             assert frame.loc[s, "probability"] == pytest.approx(prevalence)
         assert post.counts()["untested"] == 2
-        nxt = plan(run, NOISY, post, tests=4, seed=0)
+        nxt = plan(run, NOISY, posterior=post, tests=4, seed=0)
         assert not nxt.decided and nxt.undecided >= 2
 
 

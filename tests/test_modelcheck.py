@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.modelcheck import check_model
 
 from .test_decisions import two_stage_run

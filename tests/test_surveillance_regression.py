@@ -120,7 +120,7 @@ def test_dorfman_imperfect_assay_recovery_and_coverage_small():
 
 
 def test_fitted_priors_improve_decoding_brier():
-    from bayespool.decode import decode
+    from bayespool.decoders import decode
     assay = Assay(0.99, ConstantSensitivity(0.95))
     run, x, _ = dorfman_run(np.random.default_rng(5), 2000, 8, np.array([-3.5, 0.8, 2.0]), assay)
     fit = fit_regression(run, assay, formula="age10 + exposed")

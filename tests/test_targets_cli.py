@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 
 from bayespool.assay import Assay, DilutionSensitivity
-from bayespool.simulate.protocol import Tester as CohortTester
-from bayespool.simulate.protocols.bayes import BayesianLoop
+from bayespool.simulation.protocol import Tester as CohortTester
+from bayespool.simulation.protocols.bayes import BayesianLoop
 
 from .conftest import write_csv
 

@@ -9,7 +9,8 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import InputError
-from .base import Design, build_design, check_count, check_max_pool_size, pool_labels
+from ..validation import check_count
+from .base import Design, build_design, check_max_pool_size, pool_labels
 from .specimens import specimens
 
 
@@ -31,14 +32,14 @@ def dorfman_design(samples, pool_size: int | None, max_pool_size: int | None = N
     spec = specimens(samples)
     if by_risk:
         return _informative(spec, pool_size, max_pool_size)
-    k = check_count(pool_size, "--pool-size")
+    k = check_count(pool_size, "pool_size")
     limit = check_max_pool_size(max_pool_size)
     pos = spec.positions()
     if pos is not None:
         from .plate_layout import plate_dorfman_design
         return plate_dorfman_design(spec, pos, k, fill or "columns", limit)
     if fill is not None:
-        raise InputError("--fill needs a samples file with plate and well columns")
+        raise InputError("`fill` needs a samples file with plate and well columns")
     n = len(spec)
     ptr, members = dorfman_blocks(n, k)
     notes = []

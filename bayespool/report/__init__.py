@@ -114,7 +114,7 @@ def fitted_prevalence(calibration):
     return prev if isinstance(prev, dict) and prev.get("estimate") is not None else None
 
 
-def write_report(path, run=None, assay=None, posterior=None, plan=None, calibration=None,
+def write_report(path, *, run=None, assay=None, posterior=None, plan=None, calibration=None,
                  title=None, **options) -> Path:
     """Write the report to ``path`` atomically (see :func:`build_report` for ``options``); a path
     that is one of the run's input files is refused."""

@@ -92,7 +92,7 @@ def invert_positive_probability(lik: PooledLikelihood, k: int, pi: float) -> flo
 
 
 def _exact_interval(lik: PooledLikelihood, level: float):
-    from ..calibrate.intervals import clopper_pearson
+    from ..calibration.intervals import clopper_pearson
     cells = lik.cells
     if not cells.equal_sizes():
         raise InputError("interval 'exact' needs pools of one size (Hepworth 1996); these pools "

@@ -2,7 +2,7 @@
 its prior set to the current fitted risk, and the marginal log-likelihood of the readouts.
 
 :class:`ExactEStep` enumerates every group of specimens linked through read pools
-(:func:`bayespool.decode.exact.decode_exact`): the marginals and log P(readouts | beta) are exact,
+(:func:`bayespool.decoders.exact.decode_exact`): the marginals and log P(readouts | beta) are exact,
 so EM climbs the exact marginal likelihood (Vansteelandt, Goetghebeur & Verstraeten 2000,
 Biometrics 56, 1126-1133; Xie 2001, Statistics in Medicine 20, 1957-1969). The per-pool likelihood
 vectors and the groups are computed once; each step only changes the priors.
@@ -13,8 +13,8 @@ import dataclasses
 
 import numpy as np
 
-from ...decode.exact import EXACT_LIMIT, decode_exact
-from ...decode.graph import components
+from ...decoders.exact import EXACT_LIMIT, decode_exact
+from ...decoders.graph import components
 
 
 class ExactEStep:

@@ -21,7 +21,7 @@ import math
 import numpy as np
 from scipy.optimize import minimize
 
-from ...decode.exact import EXACT_LIMIT
+from ...decoders.exact import EXACT_LIMIT
 from ...errors import InputError
 from ..checks import check_level
 from . import links, mstep

@@ -16,7 +16,7 @@ import dataclasses
 
 import numpy as np
 
-from ...decode.gibbs.sampler import GibbsSampler
+from ...decoders.gibbs.sampler import GibbsSampler
 from . import links, mstep
 
 CHAINS = 2
