@@ -33,7 +33,6 @@ import numpy as np
 from numba import njit
 
 from .defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
-from .errors import InputError
 
 CALLS = ("negative", "inconclusive", "positive", "untested")
 NEGATIVE, INCONCLUSIVE, POSITIVE, UNTESTED = 0, 1, 2, 3
@@ -43,16 +42,8 @@ LEVEL = 0.95
 
 # ---- the rule
 def _open_probability(value, name: str) -> float | None:
-    if value is None:
-        return None
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{name} must be a number strictly between 0 and 1, got {value!r}") \
-            from None
-    if not (0.0 < v < 1.0) or math.isnan(v):
-        raise InputError(f"{name} must be strictly between 0 and 1, got {value!r}")
-    return v
+    from .validation import check_open_probability
+    return None if value is None else check_open_probability(value, name)
 
 
 @dataclass(frozen=True)
@@ -71,8 +62,9 @@ class DecisionRule:
     def __post_init__(self):
         lo = _open_probability(self.negative_below, "negative_below")
         hi = _open_probability(self.positive_above, "positive_above")
-        if lo is not None and hi is not None and lo > hi:
-            raise InputError(f"negative_below ({lo:g}) must not exceed positive_above ({hi:g})")
+        if lo is not None and hi is not None:
+            from .validation import check_thresholds
+            check_thresholds(lo, hi)
         object.__setattr__(self, "negative_below", lo)
         object.__setattr__(self, "positive_above", hi)
         object.__setattr__(self, "target_sensitivity",
