@@ -70,26 +70,25 @@ def check_fraction(value, name: str) -> float:
     return v
 
 
-def check_positive(value, name: str) -> float:
-    """A finite number > 0."""
+def _within(value, name: str, accept, wanted: str) -> float:
+    """A finite number that ``accept`` takes; otherwise one error saying what was ``wanted``."""
     try:
         v = check_number(value, name)
     except InputError:
         v = float("nan")
-    if not v > 0.0:
-        raise parameter_error(f"`{name}` must be a positive number, got {value!r}", name)
+    if not accept(v):
+        raise parameter_error(f"`{name}` must be {wanted}, got {value!r}", name)
     return v
+
+
+def check_positive(value, name: str) -> float:
+    """A finite number > 0."""
+    return _within(value, name, lambda v: v > 0.0, "a positive number")
 
 
 def check_nonnegative(value, name: str) -> float:
     """A finite number >= 0."""
-    try:
-        v = check_number(value, name)
-    except InputError:
-        v = float("nan")
-    if not v >= 0.0:
-        raise parameter_error(f"`{name}` must be a number >= 0, got {value!r}", name)
-    return v
+    return _within(value, name, lambda v: v >= 0.0, "a number >= 0")
 
 
 def check_count(value, name: str, minimum: int = 1) -> int:

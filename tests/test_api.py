@@ -230,3 +230,18 @@ def test_samples_file_with_wrong_prior_still_names_file_line_and_column(tmp_path
     with pytest.raises(InputError) as info:
         bayespool.read_run(DEMO / "layout.csv", DEMO / "readouts.csv", sm)
     assert "samples.csv" in str(info.value) and "line 3" in str(info.value)
+
+
+def test_posterior_by_specimen_id(demo):
+    run, assay = demo
+    post = bayespool.decode(run, assay)
+    frame = post.to_frame()
+    sid = str(run.sample_ids[7])
+    row = post[sid]
+    got = frame[frame["sample"] == sid].iloc[0]
+    assert row["probability"] == got["probability"] and row["call"] == got["call"]
+    assert sid in post and "no such specimen" not in post
+    with pytest.raises(KeyError):
+        post["no such specimen"]
+    text = repr(post)
+    assert "\n" not in text and text.startswith("Posterior(") and len(text) < 200

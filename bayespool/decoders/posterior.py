@@ -120,11 +120,43 @@ class Posterior:
                            "meet the targets for every specimen (plan more tests)")
         return out
 
+    def index_of(self, sample_id) -> int:
+        """Position of a specimen ID, in O(1) (the ID -> position table is built on first use)."""
+        table = self.__dict__.get("_index")
+        if table is None or len(table) != len(self.sample_ids):
+            table = {str(s): i for i, s in enumerate(self.sample_ids)}
+            self.__dict__["_index"] = table
+        try:
+            return table[str(sample_id)]
+        except KeyError:
+            raise KeyError(sample_id) from None
+
     def probability_of(self, sample_id) -> float:
-        idx = np.flatnonzero(self.sample_ids == sample_id)
-        if not len(idx):
-            raise KeyError(sample_id)
-        return float(self.probability[idx[0]])
+        return float(self.probability[self.index_of(sample_id)])
+
+    def __getitem__(self, sample_id) -> dict:
+        """One specimen's answer: ``posterior["S0012"]`` -> ``{"sample", "probability", "call",
+        "prior"}`` (plus ``mcse`` from a sampler), found in O(1)."""
+        i = self.index_of(sample_id)
+        row = {"sample": str(self.sample_ids[i]), "probability": float(self.probability[i]),
+               "call": CALLS[int(call_codes(self.probability[i:i + 1], self.negative_below,
+                                            self.positive_above)[0])],
+               "prior": float(self.prior[i])}
+        if self.mcse is not None:
+            row["mcse"] = float(self.mcse[i])
+        return row
+
+    def __contains__(self, sample_id) -> bool:
+        try:
+            self.index_of(sample_id)
+        except KeyError:
+            return False
+        return True
+
+    def __repr__(self) -> str:
+        c = self.counts()
+        return (f"Posterior({self.n_samples} specimens by {self.method}: {c['positive']} "
+                f"positive, {c['negative']} negative, {c['inconclusive']} inconclusive)")
 
     def positives_summary(self) -> dict:
         """Expected number of positive specimens and, when the distribution is known, a 95% interval."""
