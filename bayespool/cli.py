@@ -122,13 +122,32 @@ def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) 
                    help="assay model (default: constant Se 0.95, Sp 0.99, with a note)")
     p.add_argument("--prevalence", type=_probability, default=PREVALENCE, metavar="P",
                    help="prior probability for samples without a prior (default: %(default)s)")
-    p.add_argument("--negative-below", type=_probability, default=NEGATIVE_BELOW,
-                   metavar="LO", help="call negative when probability < LO (default: %(default)s)")
-    p.add_argument("--positive-above", type=_probability, default=POSITIVE_ABOVE,
-                   metavar="HI", help="call positive when probability > HI (default: %(default)s)")
+    p.add_argument("--negative-below", type=_probability, default=None,
+                   metavar="LO", help=f"call negative when probability < LO (default: "
+                   f"{NEGATIVE_BELOW}, unless --target-sensitivity is given)")
+    p.add_argument("--positive-above", type=_probability, default=None,
+                   metavar="HI", help=f"call positive when probability > HI (default: "
+                   f"{POSITIVE_ABOVE}, unless --max-false-discovery is given)")
+    _add_targets(p)
     p.add_argument("--seed", type=int, default=None, metavar="N",
                    help="random seed for sampling decoders (reproducible runs)")
     _add_result_words(p)
+
+
+def _add_targets(p) -> None:
+    g = p.add_argument_group("batch targets (calls that meet the laboratory's targets)")
+    g.add_argument("--target-sensitivity", type=_probability, default=None, metavar="S",
+                   help="call negative the lowest-probability specimens whose expected missed "
+                   "positives stay within (1 - S) of the batch's expected positives")
+    g.add_argument("--max-false-discovery", type=_probability, default=None, metavar="F",
+                   help="call positive the highest-probability specimens whose expected false "
+                   "positives stay within F of their number")
+
+
+def _targets(args) -> dict:
+    return {"negative_below": args.negative_below, "positive_above": args.positive_above,
+            "target_sensitivity": args.target_sensitivity,
+            "max_false_discovery": args.max_false_discovery}
 
 
 def _load_inputs(args):
@@ -264,6 +283,12 @@ def _add_decode(sub):
     p.add_argument("--out", required=True, metavar="CSV", help="posterior: sample,probability,call,...")
     p.add_argument("--report", metavar="HTML", help="also write an offline HTML report")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    p.add_argument("--strict", action="store_true",
+                   help="exit with status 3 when the result is unreliable: belief propagation "
+                   "did not converge, the readouts do not fit the assay model, or a target "
+                   "leaves specimens inconclusive")
+    p.add_argument("--no-model-check", action="store_true",
+                   help="skip the check of the readouts against the assay model")
     _add_gibbs_options(p)
     return p
 
@@ -313,10 +338,10 @@ def _run_decode(args):
     _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
     audit = _audit(args) if args.report or args.json else None
-    post = decode(run, assay, method=args.method, negative_below=args.negative_below,
-                  positive_above=args.positive_above, seed=args.seed, damping=args.damping,
+    post = decode(run, assay, method=args.method, seed=args.seed, damping=args.damping,
                   tolerance=args.tolerance, max_sweeps=args.max_sweeps,
-                  gibbs_options=_gibbs_options(args))
+                  gibbs_options=_gibbs_options(args), model_check=not args.no_model_check,
+                  **_targets(args))
     check = args.control_check
     if check is not None:
         from .controls import mark_specimens
@@ -328,11 +353,12 @@ def _run_decode(args):
                      audit=audit)
     for w in post.warnings + (check.messages if check is not None else []):
         _note(args, w)
+    problems = post.problems()
     if args.json:
         summary = post.summary()
         summary["audit"] = audit.to_dict()
         summary.update({"pools": run.n_pools, "readouts": run.n_readouts, "out": args.out,
-                        "assay": assay.describe()})
+                        "assay": assay.describe(), "reliable": not problems})
         if check is not None:
             summary["controls"] = check.summary()
         print(json.dumps(_json_ready(summary), indent=2))
@@ -340,12 +366,39 @@ def _run_decode(args):
         c = post.counts()
         print(f"{run.n_samples} samples, {run.n_pools} pools, {run.n_readouts} readouts, "
               f"decoded by {post.method}: {c['positive']} positive, {c['negative']} negative, "
-              f"{c['inconclusive']} inconclusive")
+              f"{c['inconclusive']} inconclusive" +
+              (f", {c['untested']} untested" if c["untested"] else ""))
+        _print_batch(post)
         _print_gibbs(post)
         if check is not None:
             print("\n".join(check.lines()))
         print(f"wrote {args.out}" + (f" and {args.report}" if args.report else ""))
+    if args.strict and problems:
+        for why in problems:
+            print(f"bayespool {args.command}: unreliable: {why}", file=sys.stderr)
+        return 3
     return 0
+
+
+def _print_batch(post) -> None:
+    """What the batch can expect of its calls, and the model check, in a few lines."""
+    b = post.batch
+    if b:
+        def span(e, fmt):
+            return f"{format(e['mean'], fmt)} ({format(e['low'], fmt)} to {format(e['high'], fmt)})"
+        print(f"calls: {post.decision_rule.describe()}")
+        print(f"  expected missed positives among negative calls: "
+              f"{span(b['expected_missed'], '.2f')}")
+        print(f"  expected false positives among positive calls: "
+              f"{span(b['expected_false_positives'], '.2f')}")
+        print(f"  expected batch sensitivity {span(b['expected_sensitivity'], '.3f')}, false "
+              f"discovery rate {span(b['expected_false_discovery_rate'], '.3f')} "
+              f"(95% intervals; {b['basis']})")
+    m = post.model_check
+    if m and m["checks"]:
+        verdict = "does not fit" if m["warnings"] else "no misfit found"
+        print(f"model check: {verdict} (posterior predictive p = {m['p_value']:.3g}, "
+              f"{len(m['checks'])} checks)")
 
 
 # ---- demo
@@ -451,6 +504,9 @@ def _add_design(sub):
                    help="with --optimize: the expected fraction of positive specimens")
     p.add_argument("--assay", metavar="TOML",
                    help="with --optimize: the assay (default: an error-free test, as Dorfman 1943)")
+    p.add_argument("--target-sensitivity", type=_probability, metavar="S",
+                   help="with --optimize: the cheapest pool size whose sensitivity (closed form) "
+                   "is at least S")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     _add_worklist_options(p)
     return p
@@ -485,14 +541,19 @@ def _run_design(args):
         if args.assay:
             from .assay import Assay
             assay = Assay.read(args.assay)
-        opt = optimal_dorfman(args.prevalence, assay, max_pool_size=args.max_pool_size)
+        opt = optimal_dorfman(args.prevalence, assay, max_pool_size=args.max_pool_size,
+                              target_sensitivity=args.target_sensitivity)
+        if not opt.meets_target:
+            _note(args, f"no pool size reaches a sensitivity of {args.target_sensitivity:g} "
+                  f"(the best is {opt.best.sensitivity:.4f} at k = {opt.best.pool_size}): "
+                  "consider a repeat test of positives or a more sensitive assay")
         summary["optimum"] = opt.to_dict()
         summary["optimum"]["assay"] = assay.describe() if assay else "error-free"
         if not args.json:
             _print_optimum(opt, assay, args.max_pool_size is not None)
         args.pool_size = opt.best.pool_size
-    elif args.prevalence is not None or args.assay:
-        raise InputError("--prevalence and --assay go with --optimize")
+    elif args.prevalence is not None or args.assay or args.target_sensitivity is not None:
+        raise InputError("--prevalence, --assay and --target-sensitivity go with --optimize")
     if args.samples is None or args.out is None:
         if args.optimize and args.samples is None and args.out is None:
             if args.json:
@@ -534,13 +595,16 @@ def _print_optimum(opt, assay, capped: bool) -> None:
               assay.sensitivity.model != "constant" else "")) if assay else \
         "error-free test, Dorfman 1943"
     print(f"Dorfman pooling at prevalence {b.prevalence:g} ({source})")
-    if not opt.saves:
+    if not opt.saves and opt.target_sensitivity is None:
         print(f"  pooling saves nothing at this prevalence: test each specimen alone "
               f"(pool sizes 2 to {opt.max_pool_size} all cost more)")
     limit = ""
     if opt.at_limit:
         limit = (" (the --max-pool-size limit: larger pools would cost fewer tests)" if capped
                  else " (the largest size searched: a larger --max-pool-size may do better)")
+    if opt.target_sensitivity is not None:
+        print(f"  among pool sizes with a sensitivity of at least {opt.target_sensitivity:g}"
+              + ("" if opt.meets_target else ": none reaches it, so the most sensitive"))
     print(f"  best pool size: {b.pool_size}{limit}")
     print(f"  expected tests per specimen: {b.tests_per_sample:.4f} "
           f"({100 * (1 - b.tests_per_sample):.1f}% fewer than one test each)")
@@ -575,12 +639,13 @@ def _add_simulate(sub):
     p.add_argument("--rows", type=int, metavar="R", help="array: rows per grid (default 8)")
     p.add_argument("--cols", type=int, metavar="C", help="array: columns per grid (default 12)")
     p.add_argument("--max-pool-size", type=int, metavar="K", help="largest pool allowed")
-    p.add_argument("--negative-below", type=_float_list, default=[NEGATIVE_BELOW],
+    p.add_argument("--negative-below", type=_float_list, default=None,
                    metavar="LO[,LO...]", help="decoding protocols: call negative below LO "
-                   f"(default: {NEGATIVE_BELOW})")
-    p.add_argument("--positive-above", type=_float_list, default=[POSITIVE_ABOVE],
+                   f"(default: {NEGATIVE_BELOW}, unless --target-sensitivity is given)")
+    p.add_argument("--positive-above", type=_float_list, default=None,
                    metavar="HI[,HI...]", help="decoding protocols: call positive above HI "
-                   f"(default: {POSITIVE_ABOVE})")
+                   f"(default: {POSITIVE_ABOVE}, unless --max-false-discovery is given)")
+    _add_targets(p)
     p.add_argument("--tests", type=int, metavar="N",
                    help="decoding protocols: tests per round")
     p.add_argument("--method", metavar="NAME", help="decoding protocols: decoder")
@@ -621,7 +686,9 @@ def _run_simulate(args):
 
 def _simulate_options(args) -> dict:
     return {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
-            "tests": args.tests, "method": args.method}
+            "tests": args.tests, "method": args.method,
+            "target_sensitivity": args.target_sensitivity,
+            "max_false_discovery": args.max_false_discovery}
 
 
 def _comma_names(text: str, what: str) -> list[str]:
@@ -658,15 +725,17 @@ def _check_simulate(args):
     check_outputs(outputs, args.input_files)
     accepted = {s: accepted_options(s) for s in args.schemes}  # unknown schemes fail here
     for option, value in (("pool_size", args.pool_size), ("rows", args.rows),
-                          ("cols", args.cols), ("tests", args.tests), ("method", args.method)):
+                          ("cols", args.cols), ("tests", args.tests), ("method", args.method),
+                          ("target_sensitivity", args.target_sensitivity),
+                          ("max_false_discovery", args.max_false_discovery)):
         if value is not None and not any(a is None or option in a for a in accepted.values()):
             raise InputError(f"--{option.replace('_', '-')} does not apply to the "
                              f"{', '.join(args.schemes)} scheme{'s' if len(accepted) > 1 else ''}")
     options = _simulate_options(args)
     for scheme in args.schemes:  # checks the options before any work
         for k in args.pool_size or [None]:
-            for lo in args.negative_below:
-                for hi in args.positive_above:
+            for lo in args.negative_below or [None]:
+                for hi in args.positive_above or [None]:
                     make_protocol(scheme, pool_size=k, negative_below=lo, positive_above=hi,
                                   **options)
     for p in args.prevalence or []:
@@ -700,8 +769,9 @@ def _simulate_on(args, client):
         [assay] = args.assays.values()
         sim = simulate(args.schemes[0], args.samples, prevalence=prevs[0] if prevs else None,
                        assay=assay, runs=args.runs, seed=args.seed, progress=progress,
-                       pool_size=sizes[0] if sizes else None, negative_below=lo[0],
-                       positive_above=hi[0], **where, **options)
+                       pool_size=sizes[0] if sizes else None,
+                       negative_below=lo[0] if lo else None,
+                       positive_above=hi[0] if hi else None, **where, **options)
         result = Sweep([sim])
     else:
         many = len(args.assays) > 1
@@ -1023,8 +1093,7 @@ def _run_plan(args):
     if run.n_samples == 0:
         raise InputError("no samples: the layout is empty and no --samples file lists any",
                          args.layout)
-    post = decode(run, assay, method=args.method, negative_below=args.negative_below,
-                  positive_above=args.positive_above, seed=args.seed)
+    post = decode(run, assay, method=args.method, seed=args.seed, **_targets(args))
     result = plan(run, assay, posterior=post, tests=args.tests, max_pool_size=args.max_pool_size,
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked)

@@ -6,6 +6,8 @@ size (Kim, Hudgens, Dreyfuss, Westreich & Pilcher 2007, Biometrics 63(4), from m
 references.md), and tests used with the counting bound n * H(p) (Aldridge, Johnson & Scarlett 2019).
 
     python3 scripts/eval_loop.py --samples 600 --prevalence 0.02 --runs 100
+    python3 scripts/eval_loop.py --table --samples 300 --runs 10 \
+        --target-sensitivity 0.95 --max-false-discovery 0.05     # README's table
 """
 from __future__ import annotations
 
@@ -62,8 +64,10 @@ def best_dorfman_assay(p, assay, kmax=64):
                key=lambda r: r["tests"])
 
 
-def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05)):
-    """Markdown rows: individual and Dorfman (closed forms) and the Bayesian loop (simulated)."""
+def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05), array_runs=2000, **targets):
+    """Markdown rows: individual and Dorfman (closed forms), the array (simulated, cohorts of 960)
+    and the Bayesian loop with the batch targets (simulated)."""
+    from bayespool.simulation import simulate
     assays = {"constant": Assay(0.99, ConstantSensitivity(0.95)),
               "dilution": Assay(0.99, DilutionSensitivity(0.95, 40.0, 1.5))}
     rows = ["| assay | prevalence | scheme | tests per specimen | sensitivity | specificity |",
@@ -77,7 +81,11 @@ def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05)):
             rows.append(f"| {name} | {p:g} | Dorfman k={dorf['k']} (closed form) | "
                         f"{dorf['tests']:.4f} | {dorf['sensitivity']:.4f} | "
                         f"{dorf['specificity']:.4f} |")
-            loop = evaluate(n, p, assay, runs, seed)
+            arr = simulate("array", 960, p, assay, runs=array_runs, seed=seed).to_dict()
+            rows.append(f"| {name} | {p:g} | array 8 x 12 (simulated) | "
+                        f"{arr['tests_per_sample']:.4f} | {arr['sensitivity']:.4f} | "
+                        f"{arr['specificity']:.5f} |")
+            loop = evaluate(n, p, assay, runs, seed, **targets)
             rows.append(f"| {name} | {p:g} | Bayesian loop ({runs} cohorts of {n}) | "
                         f"{loop['tests_per_sample']:.4f} | {loop['sensitivity']:.4f} | "
                         f"{loop['specificity']:.5f} |")
@@ -140,20 +148,27 @@ def main(argv=None):
     ap.add_argument("--tests-per-round", type=int, default=None)
     ap.add_argument("--max-pool-size", type=int, default=None)
     ap.add_argument("--relative", type=float, default=None)
+    ap.add_argument("--target-sensitivity", type=float, default=None)
+    ap.add_argument("--max-false-discovery", type=float, default=None)
+    ap.add_argument("--array-runs", type=int, default=2000)
     ap.add_argument("--json", action="store_true")
     ap.add_argument("--table", action="store_true",
                     help="print the README table (prevalence 0.5%%, 1%%, 2%%, 5%%; constant and "
                     "dilution assay)")
     args = ap.parse_args(argv)
     if args.table:
-        print(table(args.samples, args.runs, args.seed))
+        print(table(args.samples, args.runs, args.seed, array_runs=args.array_runs,
+                    target_sensitivity=args.target_sensitivity,
+                    max_false_discovery=args.max_false_discovery))
         return 0
     sens = (DilutionSensitivity(args.se, 40.0, 1.5) if args.dilution
             else ConstantSensitivity(args.se))
     assay = Assay(args.sp, sens)
     loop = evaluate(args.samples, args.prevalence, assay, args.runs, args.seed,
                     tests=args.tests_per_round, max_pool_size=args.max_pool_size,
-                    relative_information=args.relative)
+                    relative_information=args.relative,
+                    target_sensitivity=args.target_sensitivity,
+                    max_false_discovery=args.max_false_discovery)
     dorf = best_dorfman_assay(args.prevalence, assay)
     result = {"samples": args.samples, "prevalence": args.prevalence, "runs": args.runs,
               "assay": assay.describe(), "bayes": loop,

@@ -16,6 +16,7 @@ from typing import Callable
 
 import numpy as np
 
+from ..decisions import DecisionRule
 from ..defaults import METHODS
 from ..errors import InputError
 from ..run import Run
@@ -224,11 +225,13 @@ def choose_decoders(run: Run, comps: Components, method: str, exact_limit: int =
 
 # ---- the entry point
 def decode(run: Run, assay, *, method: str = "auto",
-           negative_below: float = DEFAULT_NEGATIVE_BELOW,
-           positive_above: float = DEFAULT_POSITIVE_ABOVE,
+           negative_below: float | None = None,
+           positive_above: float | None = None,
            seed=None, exact_limit: int = EXACT_LIMIT, damping: float = DAMPING,
            tolerance: float = TOLERANCE, max_sweeps: int = MAX_SWEEPS,
            progress: bool | None = None, gibbs_options: dict | None = None,
+           target_sensitivity: float | None = None, max_false_discovery: float | None = None,
+           expectations: bool = True, model_check: bool = True,
            exact_memo: dict | None = None) -> Posterior:
     """Posterior P(x_i = 1 | readouts) for every specimen of ``run`` under ``assay``.
 
@@ -239,18 +242,26 @@ def decode(run: Run, assay, *, method: str = "auto",
     ``exact_memo``: an :class:`~bayespool.decoders.exact.ExactMemo` the caller keeps across
     decodes of a growing run (the closed loop); components whose enumeration would read exactly
     the same numbers are taken from it (bit-identical results).
+
+    Calls: ``negative_below`` / ``positive_above`` (default 0.01 / 0.99 unless a target covers
+    that side) and the batch targets ``target_sensitivity`` / ``max_false_discovery``
+    (:mod:`bayespool.decisions`). ``expectations`` adds what the batch can expect of its calls
+    (``Posterior.batch``), ``model_check`` the posterior predictive check of the readouts
+    (``Posterior.model_check``, :mod:`bayespool.modelcheck`).
     """
     from ..ct_evidence import ct_notes
-    post = _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
-                   tolerance, max_sweeps, progress, gibbs_options, exact_memo)
+    rule = DecisionRule(negative_below, positive_above, target_sensitivity, max_false_discovery)
+    post = _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max_sweeps,
+                   progress, gibbs_options, expectations, model_check, exact_memo)
     post.warnings.extend(ct_notes(run, assay))
     return post
 
 
-def _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
-            tolerance, max_sweeps, progress, gibbs_options, exact_memo=None) -> Posterior:
+def _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max_sweeps,
+            progress, gibbs_options, expectations, model_check, exact_memo=None) -> Posterior:
     method = check_choice(method, "method", METHODS)
-    lo, hi = check_thresholds(negative_below, positive_above)
+    lo, hi = check_thresholds(DEFAULT_NEGATIVE_BELOW if rule.low is None else rule.low,
+                              DEFAULT_POSITIVE_ABOVE if rule.high is None else rule.high)
     damping, tolerance, max_sweeps = check_bp_options(damping, tolerance, max_sweeps)
     exact_limit = check_count(exact_limit, "exact_limit")
     check_seed(seed)  # a bad seed fails before any work
@@ -271,7 +282,8 @@ def _decode(run, assay, method, negative_below, positive_above, seed, exact_limi
         if method != "gibbs":
             post.warnings.append("an unknown prevalence links every sample: decoded by the Gibbs "
                                  "sampler")
-        return post
+        return _judge(run, assay, post, rule, (lik_ptr, loglik), None, seed, expectations,
+                      model_check)
     comps = components(run)
     choice = choose_decoders(run, comps, method, exact_limit)
     options = {"exact_limit": exact_limit, "damping": damping, "tolerance": tolerance,
@@ -300,6 +312,23 @@ def _decode(run, assay, method, negative_below, positive_above, seed, exact_limi
     if assay.ct is not None:
         from .ct_decode import finish_ct
         finish_ct(post, run, assay, options, choice)
+    return _judge(run, assay, post, rule, (lik_ptr, loglik), comps, seed, expectations,
+                  model_check)
+
+
+def _judge(run, assay, post: Posterior, rule, lik, comps, seed, expectations: bool,
+           model_check: bool) -> Posterior:
+    """Calls by ``rule``, what the batch can expect of them, and the model check."""
+    post.rule = rule
+    if expectations:
+        from ..decisions import batch_expectation, batch_warnings
+        post.batch = batch_expectation(run, assay, post, lik=lik, comps=comps).summary()
+        post.warnings.extend(batch_warnings(post.batch, rule))
+    if model_check:
+        from ..modelcheck import check_model
+        check = check_model(run, assay, post, seed=seed)
+        post.model_check = check.summary()
+        post.warnings.extend(check.warnings)
     return post
 
 

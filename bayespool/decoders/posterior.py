@@ -11,13 +11,13 @@ import numpy as np
 import pandas as pd
 
 
+from ..decisions import CALLS, INCONCLUSIVE, UNTESTED, Decision, DecisionRule, decide
 from ..defaults import NEGATIVE_BELOW as DEFAULT_NEGATIVE_BELOW
 from ..defaults import POSITIVE_ABOVE as DEFAULT_POSITIVE_ABOVE
-CALLS = ("negative", "inconclusive", "positive")
 
 
 def call_codes(probability: np.ndarray, negative_below: float, positive_above: float) -> np.ndarray:
-    """0 negative, 1 inconclusive, 2 positive."""
+    """0 negative, 1 inconclusive, 2 positive, by the two thresholds alone."""
     p = np.asarray(probability)
     return np.where(p < negative_below, 0, np.where(p > positive_above, 2, 1)).astype(np.int8)
 
@@ -31,6 +31,11 @@ class Posterior:
     the log marginal likelihood of the readouts when the decoder knows it (exact), else None.
     ``count_distribution[c]`` is P(number of positive specimens = c) when known. ``draws`` are kept
     joint posterior draws (draws x specimens, uint8) when the decoder produces them.
+
+    Calls follow ``rule`` (:class:`bayespool.decisions.DecisionRule`: thresholds, batch targets),
+    by default the two thresholds; a specimen in no read pool (``columns["pools"] == 0``) is
+    ``untested``. ``batch`` (what the batch can expect of its calls) and ``model_check`` (the
+    posterior predictive check of the readouts) are the dictionaries of ``--json`` when computed.
     """
 
     sample_ids: np.ndarray
@@ -47,24 +52,73 @@ class Posterior:
     diagnostics: dict = field(default_factory=dict)
     columns: dict = field(default_factory=dict)
     warnings: list = field(default_factory=list)
+    rule: DecisionRule | None = None
+    batch: dict | None = None
+    model_check: dict | None = None
 
     @property
     def n_samples(self) -> int:
         return len(self.sample_ids)
 
+    @property
+    def decision_rule(self) -> DecisionRule:
+        """The rule in force: ``rule``, or the two thresholds."""
+        if self.rule is not None:
+            return self.rule
+        return DecisionRule(self.negative_below, self.positive_above)
+
+    @property
+    def tested(self) -> np.ndarray:
+        """True for specimens in at least one read pool."""
+        pools = self.columns.get("pools")
+        if pools is None:
+            return np.ones(self.n_samples, dtype=bool)
+        return np.asarray(pools) > 0
+
+    def decision(self) -> Decision:
+        """Calls and the rule behind each (computed once per rule and probabilities)."""
+        key = (id(self.probability), self.decision_rule)
+        cached = getattr(self, "_decision", None)
+        if cached is None or cached[0] != key:
+            cached = (key, decide(self.probability, self.decision_rule, self.tested))
+            self._decision = cached
+        return cached[1]
+
     def call_codes(self) -> np.ndarray:
-        return call_codes(self.probability, self.negative_below, self.positive_above)
+        """0 negative, 1 inconclusive, 2 positive, 3 untested."""
+        return self.decision().codes
 
     def calls(self) -> np.ndarray:
-        return np.asarray(CALLS, dtype=object)[self.call_codes()]
+        return self.decision().calls()
 
     def counts(self) -> dict:
-        c = np.bincount(self.call_codes(), minlength=3)
-        return {"positive": int(c[2]), "negative": int(c[0]), "inconclusive": int(c[1])}
+        c = self.decision().counts()
+        return {"positive": c["positive"], "negative": c["negative"],
+                "inconclusive": c["inconclusive"], "untested": c["untested"]}
 
     def undecided(self) -> np.ndarray:
-        """Indices of specimens whose call is inconclusive."""
-        return np.flatnonzero(self.call_codes() == 1)
+        """Indices of specimens still to decide: inconclusive or untested."""
+        codes = self.call_codes()
+        return np.flatnonzero((codes == INCONCLUSIVE) | (codes == UNTESTED))
+
+    def problems(self) -> list[str]:
+        """Why the result should not be relied on as it stands (``--strict`` exits 3 on any):
+        a decoder that did not converge, readouts that do not fit the assay model, targets that
+        leave specimens undecided."""
+        out = []
+        if self.diagnostics.get("converged") is False:
+            out.append("the decoder did not converge on some linked groups (see the warnings)")
+        check = self.model_check
+        if check and check.get("warnings"):
+            out.append(f"the readouts do not fit the assay model (posterior predictive "
+                       f"p = {check['p_value']:.3g})")
+        if self.decision_rule.has_targets:
+            c = self.counts()
+            left = c["inconclusive"] + c["untested"]
+            if left:
+                out.append(f"{left} specimen(s) stay undecided: the readouts at hand cannot "
+                           "meet the targets for every specimen (plan more tests)")
+        return out
 
     def index_of(self, sample_id) -> int:
         """Position of a specimen ID, in O(1) (the ID -> position table is built on first use)."""
@@ -118,8 +172,8 @@ class Posterior:
     def to_frame(self) -> pd.DataFrame:
         """``sample, probability, call`` plus prior, decoder and the extra columns."""
         frame = pd.DataFrame({"sample": self.sample_ids, "probability": self.probability,
-                              "call": self.calls(), "prior": self.prior,
-                              "method": self.sample_method})
+                              "call": self.calls(), "call_rule": self.decision().rules,
+                              "prior": self.prior, "method": self.sample_method})
         if self.mcse is not None:
             frame["mcse"] = self.mcse
         for name, values in self.columns.items():
@@ -131,8 +185,13 @@ class Posterior:
         out = {"method": self.method, "samples": self.n_samples, "calls": self.counts(),
                "thresholds": {"negative_below": self.negative_below,
                               "positive_above": self.positive_above},
+               "rule": self.decision_rule.to_dict(),
                "positives": self.positives_summary(),
                "log_evidence": self.log_evidence}
+        if self.batch is not None:
+            out["batch"] = self.batch
+        if self.model_check is not None:
+            out["model_check"] = self.model_check
         out.update({k: v for k, v in self.diagnostics.items()})
         if self.warnings:
             out["warnings"] = list(self.warnings)

@@ -106,11 +106,14 @@ class DorfmanOptimum:
     saves: bool              # False when no pool size beats individual testing
     max_pool_size: int
     at_limit: bool = False   # the best is the largest size searched: a larger one may be better
+    target_sensitivity: float | None = None  # only sizes meeting it competed
+    meets_target: bool = True  # False: no size meets the target; the most sensitive is given
 
     def to_dict(self) -> dict:
         out = self.best.to_dict()
         out.update({"pooling_saves": self.saves, "max_pool_size": self.max_pool_size,
-                    "at_limit": self.at_limit,
+                    "at_limit": self.at_limit, "target_sensitivity": self.target_sensitivity,
+                    "meets_target": self.meets_target,
                     "tests_saved_percent": 100.0 * (1.0 - self.best.tests_per_sample)})
         return out
 
@@ -121,11 +124,15 @@ def default_max_pool_size(prevalence: float) -> int:
 
 
 def optimal_dorfman(prevalence: float, assay: Assay | None = None, *,
-                    max_pool_size: int | None = None) -> DorfmanOptimum:
+                    max_pool_size: int | None = None,
+                    target_sensitivity: float | None = None) -> DorfmanOptimum:
     """Best Dorfman pool size (fewest expected tests per specimen) for k = 1..max_pool_size.
 
     Dorfman (1943) without error; Kim et al. (2007) (with Se(k, d) as above) with an assay. k = 1 is
-    individual testing; when it wins, pooling saves nothing at that prevalence.
+    individual testing; when it wins, pooling saves nothing at that prevalence. With
+    ``target_sensitivity``, only pool sizes whose closed-form sensitivity meets it compete; when
+    none does (not even testing alone), ``meets_target`` is False and the most sensitive size is
+    returned.
     """
     p = check_open_probability(prevalence, "prevalence")
     limit = check_max_pool_size(max_pool_size)
@@ -137,9 +144,19 @@ def optimal_dorfman(prevalence: float, assay: Assay | None = None, *,
         sizes = [k for k in sizes if k in covered or k == 1]
     rows = [dorfman_expected(p, k, assay) for k in sizes]
     table = pd.DataFrame([r.to_dict() for r in rows])
-    best = min(rows, key=lambda r: (round(r.tests_per_sample, 12), r.pool_size))
+    meets = True
+    pool = rows
+    if target_sensitivity is not None:
+        from ..decisions import DecisionRule
+        target = DecisionRule(target_sensitivity=target_sensitivity).target_sensitivity
+        pool = [r for r in rows if r.sensitivity >= target - 1e-12]
+        meets = bool(pool)
+        if not pool:
+            pool = [max(rows, key=lambda r: (r.sensitivity, -r.pool_size))]
+    best = min(pool, key=lambda r: (round(r.tests_per_sample, 12), r.pool_size))
     return DorfmanOptimum(best, table, best.pool_size > 1, kmax,
-                          at_limit=best.pool_size == sizes[-1] and len(sizes) > 1)
+                          at_limit=best.pool_size == sizes[-1] and len(sizes) > 1,
+                          target_sensitivity=target_sensitivity, meets_target=meets)
 
 
 def dorfman_cohort_expected(prevalence: float, n: int, pool_size: int,

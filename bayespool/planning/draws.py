@@ -21,12 +21,15 @@ SAMPLE_LIMIT = EXACT_LIMIT  # largest component drawn exactly
 
 
 def posterior_draws(run, assay, posterior, n_draws: int = DEFAULT_DRAWS, rng=None,
-                    notes: list | None = None, memo=None) -> np.ndarray:
+                    notes: list | None = None, memo=None,
+                    every_group: bool = False) -> np.ndarray:
     """Joint posterior draws, an array (n_draws, n_samples) of uint8 (1 = positive).
 
     ``rng`` is a ``numpy.random.Generator`` (or a seed). ``notes`` (a list), when given, receives a
     line about any approximation made. ``memo``: an
     :class:`~bayespool.decoders.exact.ExactMemo` kept across rounds (same draws, less enumeration).
+    ``every_group`` draws every enumerable group jointly, decided or not (the model check
+    replicates every readout).
     """
     rng = np.random.default_rng(rng)
     n = run.n_samples
@@ -42,6 +45,8 @@ def posterior_draws(run, assay, posterior, n_draws: int = DEFAULT_DRAWS, rng=Non
     undecided[posterior.undecided()] = True
     has_undecided = np.bincount(comps.sample_label, weights=undecided,
                                 minlength=comps.n_components) > 0
+    if every_group:
+        has_undecided[:] = True
     joint = np.flatnonzero(has_undecided & (sizes > 1) & (sizes <= SAMPLE_LIMIT))
     too_big = np.flatnonzero(has_undecided & (sizes > SAMPLE_LIMIT))
     if len(too_big) and notes is not None:

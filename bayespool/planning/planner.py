@@ -7,7 +7,6 @@ import numpy as np
 
 from ..decoders.graph import components
 from ..defaults import METHODS, NEGATIVE_BELOW, POSITIVE_ABOVE
-from ..decoders.posterior import call_codes
 from ..errors import InputError
 from ..validation import (check_choice, check_count, check_nonnegative, check_seed,
                           check_thresholds)
@@ -59,7 +58,8 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
          n_draws: int = DEFAULT_DRAWS, seed=None, min_information: float = DEFAULT_MIN_INFORMATION,
          relative_information: float = 0.0, max_linked: int = DEFAULT_MAX_LINKED,
          method: str = "auto", draws: np.ndarray | None = None, id_prefix: str = "B",
-         replicates_use_material: bool = False, exact_memo=None) -> Plan:
+         replicates_use_material: bool = False, target_sensitivity: float | None = None,
+         max_false_discovery: float | None = None, exact_memo=None) -> Plan:
     """Plan up to ``tests`` pools of at most ``max_pool_size`` undecided specimens.
 
     Undecided: probability between the thresholds, or in no read pool yet (so a first stage at a
@@ -74,7 +74,9 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     decode stays exact); tests within one existing group are always allowed. ``min_information``:
     stop when the best remaining test is expected to tell fewer bits; ``relative_information``: or
     fewer than that fraction of the first pick. ``draws``: joint posterior draws (draws x specimens)
-    to use instead of making them. ``seed``: reproducible draws. ``exact_memo``: an
+    to use instead of making them. ``seed``: reproducible draws. ``target_sensitivity`` and
+    ``max_false_discovery``: batch targets (:mod:`bayespool.decisions`); the planner keeps choosing
+    tests while they leave specimens inconclusive. ``exact_memo``: an
     :class:`~bayespool.decoders.exact.ExactMemo` kept across rounds (the closed loop), so components
     drawn before are not enumerated again (the same draws).
     """
@@ -86,23 +88,26 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     relative_information = check_nonnegative(relative_information, "relative_information")
     method = check_choice(method, "method", METHODS)
     check_seed(seed)  # a bad seed fails before any work
+    targets = {"target_sensitivity": target_sensitivity,
+               "max_false_discovery": max_false_discovery}
     if posterior is None:
         from ..decoders import decode
-        lo, hi = check_thresholds(NEGATIVE_BELOW if negative_below is None else negative_below,
-                                  POSITIVE_ABOVE if positive_above is None else positive_above)
-        posterior = decode(run, assay, method=method, negative_below=lo, positive_above=hi,
-                           seed=seed)
+        posterior = decode(run, assay, method=method, negative_below=negative_below,
+                           positive_above=positive_above, seed=seed, expectations=False,
+                           model_check=False, **targets)
     else:
         if len(posterior.probability) != run.n_samples:
             raise InputError("the posterior does not belong to this run (different specimens)")
-        lo, hi = check_thresholds(posterior.negative_below if negative_below is None
-                                  else negative_below,
-                                  posterior.positive_above if positive_above is None
-                                  else positive_above)
-        if (lo, hi) != (posterior.negative_below, posterior.positive_above):
-            posterior = dataclasses.replace(posterior, negative_below=lo, positive_above=hi)
+        given = {"negative_below": negative_below, "positive_above": positive_above, **targets}
+        given = {k: v for k, v in given.items() if v is not None}
+        if given:
+            rule = dataclasses.replace(posterior.decision_rule, **given)
+            lo, hi = check_thresholds(NEGATIVE_BELOW if rule.low is None else rule.low,
+                                      POSITIVE_ABOVE if rule.high is None else rule.high)
+            posterior = dataclasses.replace(posterior, negative_below=lo, positive_above=hi,
+                                            rule=rule)
     prob = np.asarray(posterior.probability, dtype=float)
-    undecided = np.flatnonzero((call_codes(prob, lo, hi) == 1) | untested(run))
+    undecided = np.union1d(posterior.undecided(), np.flatnonzero(untested(run)))
     notes: list = []
     kmax = max(max_pool_size, int(run.pool_size.max()) if run.n_pools else 1)
     qtab = readout_table(assay, kmax)

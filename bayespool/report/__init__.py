@@ -36,6 +36,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     from .bench import controls_section, destinations_section
     from .calibration import calibration_section, observed_points
     from .calls import calls_section, map_section
+    from .expectations import expectations_section
     from .groups import groups_section
     from .page import page
     from .planned import plan_section
@@ -67,6 +68,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     add("controls", "Controls", controls_section(controls))
     if posterior is not None:
         add("decoder", "Decoder", decoder_section(posterior, run))
+        add("expectations", "Expectations", expectations_section(posterior))
         mapped = map_section(posterior, run)
         add("plate-map" if 'id="plate-map"' in mapped else "ranked",
             "Plate map" if 'id="plate-map"' in mapped else "Ranked chart", mapped)

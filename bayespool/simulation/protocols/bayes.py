@@ -2,8 +2,8 @@
 
 Each round decodes every readout so far (:func:`bayespool.decoders.decode`), plans a batch by expected
 information gain (:func:`bayespool.planning.plan`), and reads it through the :class:`Tester`; the loop
-stops when every specimen is decided (probability below the negative threshold or above the positive
-one, after at least one readout) or when no test within the limits would tell anything more.
+stops when every specimen is decided (by the thresholds or the batch targets, after at least one
+readout) or when no test within the limits would tell anything more.
 Specimens still undecided then are called by whether their probability exceeds one half. The first
 round starts from the priors alone, so its pools are sized for information at the prevalence. This
 is sequential Bayesian experimental design (Lindley 1956; for pooled tests Cuturi, Teboul & Vert
@@ -15,7 +15,6 @@ import numpy as np
 import pandas as pd
 
 from ...decoders.exact import ExactMemo
-from ...defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
 from ...errors import InputError
 from ..protocol import Outcome, Protocol, Tester
 
@@ -33,13 +32,18 @@ class BayesianLoop(Protocol):
                  negative_below: float | None = None, positive_above: float | None = None,
                  method: str | None = None, max_draws: int | None = None,
                  n_draws: int | None = None, relative_information: float | None = None,
-                 max_rounds: int | None = None, seed=None, remember: bool = True):
+                 max_rounds: int | None = None, seed=None,
+                 target_sensitivity: float | None = None,
+                 max_false_discovery: float | None = None, remember: bool = True):
         """``tests``: tests per round (at most); ``method``: the decoder; ``max_draws``: material
         per specimen over the whole loop; ``relative_information``: a round keeps tests worth at
         least this fraction of its best one; ``seed``: the planner's draws (else from the
-        Tester); ``remember``: keep exact enumerations of components across rounds and cohorts
+        Tester); ``target_sensitivity``, ``max_false_discovery``: batch targets
+        (:mod:`bayespool.decisions`): the loop tests until they call every specimen;
+        ``remember``: keep exact enumerations of components across rounds and cohorts
         (:class:`~bayespool.decoders.exact.ExactMemo`: the same numbers, several times faster; off
         only to check that)."""
+        from ...decisions import DecisionRule
         from ...defaults import METHODS
         from ...planning import DEFAULT_MAX_POOL_SIZE
         from ...planning.draws import DEFAULT_DRAWS
@@ -49,8 +53,8 @@ class BayesianLoop(Protocol):
         if self.method not in METHODS:
             raise InputError(f"unknown method {self.method!r} (choose one of "
                              f"{', '.join(METHODS)})")
-        self.negative_below = NEGATIVE_BELOW if negative_below is None else float(negative_below)
-        self.positive_above = POSITIVE_ABOVE if positive_above is None else float(positive_above)
+        self.rule = DecisionRule(negative_below, positive_above, target_sensitivity,
+                                 max_false_discovery)
         self.max_draws = max_draws  # total material per specimen over the whole loop
         self.n_draws = DEFAULT_DRAWS if n_draws is None else int(n_draws)
         self.relative_information = (DEFAULT_RELATIVE if relative_information is None
@@ -73,12 +77,11 @@ class BayesianLoop(Protocol):
     def parameters(self) -> dict:
         return {"max_pool_size": self.max_pool_size, "tests": self.tests_per_round,
                 "method": self.method,
-                "negative_below": self.negative_below, "positive_above": self.positive_above,
+                **self.rule.to_dict(),
                 "relative_information": self.relative_information,
                 "posterior_draws": self.n_draws, "material_limit": self.max_draws}
 
     def run(self, tester: Tester, prior: np.ndarray) -> Outcome:
-        from ...decoders import decode
         from ...planning import plan
         from ...run import Run
         n = tester.n
@@ -87,9 +90,7 @@ class BayesianLoop(Protocol):
         run.prior = np.broadcast_to(np.asarray(prior, dtype=float), (n,)).copy()
         rng = np.random.default_rng(tester.rng.integers(2**63) if self.seed is None else self.seed)
         for _ in range(self.max_rounds):
-            post = decode(run, tester.assay, method=self.method,
-                          negative_below=self.negative_below, positive_above=self.positive_above,
-                          seed=int(rng.integers(2**31)), exact_memo=self._memo)
+            post = self._decode(run, tester, rng)
             left = None
             if self.max_draws is not None:
                 left = np.maximum(self.max_draws - tester.draws, 0)
@@ -112,11 +113,18 @@ class BayesianLoop(Protocol):
                 run.readout_ct = new if frame is None else pd.concat([frame, new],
                                                                      ignore_index=True)
         else:
-            post = decode(run, tester.assay, method=self.method,
-                          negative_below=self.negative_below, positive_above=self.positive_above,
-                          seed=int(rng.integers(2**31)), exact_memo=self._memo)
+            post = self._decode(run, tester, rng)
         self.last_posterior = post
         codes = post.call_codes()
-        self.undecided_at_end = int(np.sum(codes == 1))
-        calls = (codes == 2) | ((codes == 1) & (post.probability > 0.5))
+        left = (codes == 1) | (codes == 3)
+        self.undecided_at_end = int(np.sum(left))
+        calls = (codes == 2) | (left & (post.probability > 0.5))
         return tester.outcome(calls)
+
+    def _decode(self, run, tester, rng):
+        from ...decoders import decode
+        r = self.rule
+        return decode(run, tester.assay, method=self.method, negative_below=r.negative_below,
+                      positive_above=r.positive_above, target_sensitivity=r.target_sensitivity,
+                      max_false_discovery=r.max_false_discovery, seed=int(rng.integers(2**31)),
+                      expectations=False, model_check=False, exact_memo=self._memo)
