@@ -49,6 +49,10 @@ def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) 
                    metavar="HI", help="call positive when probability > HI (default: %(default)s)")
     p.add_argument("--seed", type=int, default=None, metavar="N",
                    help="random seed for sampling decoders (reproducible runs)")
+    p.add_argument("--assay-uncertainty", action="store_true",
+                   help="average each pool's likelihood over the fitted assay's uncertainty "
+                   "(the [fit.uncertainty] table calibrate writes); an approximation that treats "
+                   "each pool's assay as a separate draw")
 
 
 def _load_inputs(args):
@@ -59,6 +63,13 @@ def _load_inputs(args):
     else:
         assay = DEFAULT_ASSAY
         _note(args, f"no --assay given: assuming {assay.describe()}")
+    if getattr(args, "assay_uncertainty", False):
+        from .assay_spread import integrate
+        if not args.assay:
+            raise InputError("--assay-uncertainty needs --assay: a file written by calibrate")
+        assay = integrate(assay, args.assay)
+        _note(args, "likelihoods averaged over the fitted assay's uncertainty (--assay-uncertainty;"
+                    " an approximation: each pool's assay is treated as a separate draw)")
     run = Run.read(args.layout, args.readouts, args.samples, prevalence=args.prevalence)
     run.sources["assay"] = args.assay
     return run, assay
@@ -153,7 +164,7 @@ def _run_decode(args):
     if args.json:
         summary = post.summary()
         summary.update({"pools": run.n_pools, "readouts": run.n_readouts, "out": args.out,
-                        "assay": assay.describe()})
+                        "assay": assay.describe(), "assay_uncertainty": args.assay_uncertainty})
         print(json.dumps(summary, indent=2))
     else:
         c = post.counts()
@@ -680,7 +691,8 @@ def _run_plan(args):
         _note(args, w)
     if args.json:
         summary = result.summary()
-        summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe()})
+        summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe(),
+                        "assay_uncertainty": args.assay_uncertainty})
         print(json.dumps(summary, indent=2))
     elif result.decided:
         print(f"every sample is decided ({run.n_samples} samples): no test to plan; wrote a "
