@@ -15,6 +15,7 @@ import numpy as np
 
 from .errors import InputError
 from .io import read_toml, write_text
+from .results import result_words
 
 MODELS = ("constant", "dilution", "table")
 
@@ -208,6 +209,7 @@ class Assay:
     specificity: float
     sensitivity: Sensitivity
     details: dict = field(default_factory=dict, compare=False)  # fit details; decoders ignore them
+    results: dict = field(default_factory=dict, compare=False)  # the laboratory's result words
 
     def __post_init__(self):
         _prob(self.specificity, "specificity", None)
@@ -253,6 +255,8 @@ class Assay:
     # ---- the file
     def to_dict(self) -> dict:
         out = {"specificity": self.specificity, "sensitivity": self.sensitivity.to_dict()}
+        if self.results:
+            out["results"] = self.results
         if self.details:
             out["fit"] = self.details
         return out
@@ -269,7 +273,12 @@ class Assay:
         sp = _prob(_get(data, "specificity", "the assay file", source), "specificity", source)
         sens = sensitivity_from_dict(_get(data, "sensitivity", "the assay file", source), source)
         details = data.get("fit", {}) if isinstance(data.get("fit", {}), dict) else {}
-        return cls(sp, sens, details)
+        results = data.get("results", {})
+        if not isinstance(results, dict):
+            raise InputError("[results] must be a table of result words, e.g. positive = "
+                             '["detected"]', source)
+        result_words(results, source)  # refuses a malformed table here, naming the file
+        return cls(sp, sens, details, results)
 
     @classmethod
     def read(cls, path) -> "Assay":

@@ -33,6 +33,51 @@ def _probability(text: str) -> float:
         raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
 
 
+def _result_word(text: str):
+    word, sep, meaning = text.rpartition("=")
+    if not sep or not word.strip() or meaning.strip().lower() not in ("positive", "negative",
+                                                                      "skip"):
+        raise argparse.ArgumentTypeError(f"expected WORD=positive, WORD=negative or WORD=skip, "
+                                         f"got {text!r}")
+    return word.strip(), meaning.strip().lower()
+
+
+def _add_result_words(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--result-word", type=_result_word, action="append", default=[],
+                   metavar="WORD=MEANING", help="read a laboratory's own result word as positive, "
+                   "negative or skip (repeatable; adds to the usual words and the assay file's "
+                   "[results] table)")
+
+
+def _result_words(args, assay=None) -> dict:
+    """The laboratory's own words: the assay file's [results] table, then --result-word."""
+    from .results import MEANINGS
+    words = {}
+    for key, value in (assay.results if assay is not None else {}).items():
+        if key in MEANINGS and isinstance(value, list):
+            words.update(dict.fromkeys(value, key))
+        else:
+            words[key] = value
+    words.update(dict(getattr(args, "result_word", [])))
+    return words
+
+
+INPUT_OPTIONS = ("layout", "readouts", "samples", "assay", "validation")
+
+
+def _check_outputs(args, more: dict | None = None, **outputs) -> None:
+    """Before any work: every output (option -> path, plus ``more``: description -> path) lies in
+    an existing folder and is neither an input of the command nor another output."""
+    from .io import check_outputs
+    inputs = {}
+    for name in INPUT_OPTIONS:
+        value = getattr(args, name, None)
+        if isinstance(value, str) and not value.strip().isdigit():
+            inputs[f"--{name}"] = value
+    named = {f"--{k.replace('_', '-')}": v for k, v in outputs.items()}
+    check_outputs({**named, **(more or {})}, inputs)
+
+
 def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) -> None:
     from .defaults import NEGATIVE_BELOW, POSITIVE_ABOVE, PREVALENCE
     p.add_argument("--layout", required=True, metavar="CSV", help="pool,sample memberships")
@@ -53,25 +98,28 @@ def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) 
                    help="average each pool's likelihood over the fitted assay's uncertainty "
                    "(the [fit.uncertainty] table calibrate writes); an approximation that treats "
                    "each pool's assay as a separate draw")
+    _add_result_words(p)
 
 
 def _load_inputs(args):
+    """The run and the assay; the note about a default assay comes only once the inputs read
+    cleanly, so bad input gets exactly one line on stderr."""
     from .assay import DEFAULT_ASSAY, Assay
     from .run import Run
-    if args.assay:
-        assay = Assay.read(args.assay)
-    else:
-        assay = DEFAULT_ASSAY
-        _note(args, f"no --assay given: assuming {assay.describe()}")
+    assay = Assay.read(args.assay) if args.assay else DEFAULT_ASSAY
     if getattr(args, "assay_uncertainty", False):
         from .assay_spread import integrate
         if not args.assay:
             raise InputError("--assay-uncertainty needs --assay: a file written by calibrate")
         assay = integrate(assay, args.assay)
+    run = Run.read(args.layout, args.readouts, args.samples, prevalence=args.prevalence,
+                   result_words=_result_words(args, assay))
+    run.sources["assay"] = args.assay
+    if not args.assay:
+        _note(args, f"no --assay given: assuming {assay.describe()}")
+    if getattr(args, "assay_uncertainty", False):
         _note(args, "likelihoods averaged over the fitted assay's uncertainty (--assay-uncertainty;"
                     " an approximation: each pool's assay is treated as a separate draw)")
-    run = Run.read(args.layout, args.readouts, args.samples, prevalence=args.prevalence)
-    run.sources["assay"] = args.assay
     return run, assay
 
 
@@ -146,10 +194,8 @@ def _print_gibbs(post) -> None:
 
 def _run_decode(args):
     from .decode import decode
-    from .io import check_output_path, write_frame
-    check_output_path(args.out)
-    if args.report:
-        check_output_path(args.report)
+    from .io import write_frame
+    _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
                   positive_above=args.positive_above, seed=args.seed, damping=args.damping,
@@ -240,13 +286,13 @@ def _read_assay_or_default(args):
 
 def _add_design(sub):
     p = sub.add_parser("design", help="make a pooling layout (dorfman, array, kautz-singleton, "
-                       "random) or find the best Dorfman pool size",
+                       "random, code) or find the best Dorfman pool size",
                        description="Write a pooling layout (pool,sample) and print its properties: "
                        "pools, pool sizes, pools per specimen and the disjunctness it guarantees. "
                        "With --optimize, the Dorfman pool size with the fewest expected tests. "
                        + CAUTION)
     p.add_argument("--scheme", required=True,
-                   choices=("dorfman", "array", "kautz-singleton", "random"))
+                   choices=("dorfman", "array", "kautz-singleton", "random", "code"))
     p.add_argument("--samples", metavar="N|CSV",
                    help="number of specimens (IDs S0001...) or a samples file (sample column)")
     p.add_argument("--out", metavar="CSV", help="layout to write: pool,sample")
@@ -267,6 +313,12 @@ def _add_design(sub):
     p.add_argument("--pools", type=int, metavar="T",
                    help="random: number of pools (default: the fewest within --max-pool-size)")
     p.add_argument("--seed", type=int, metavar="N", help="random: seed (reproducible layouts)")
+    p.add_argument("--errors", type=int, default=1, metavar="E",
+                   help="code: wrong readouts to tolerate when one specimen is positive "
+                   "(default: %(default)s)")
+    p.add_argument("--code", choices=("hamming", "extended-hamming", "bch", "extended-bch"),
+                   help="code: the code family (default: Hamming or extended Hamming for one "
+                   "error, BCH for more), shortened to the fewest pools")
     p.add_argument("--optimize", action="store_true",
                    help="dorfman: best pool size for --prevalence (and --assay)")
     p.add_argument("--prevalence", type=_probability, metavar="P",
@@ -285,14 +337,15 @@ def _design_options(args) -> dict:
     if args.scheme == "kautz-singleton":
         return {"positives": args.positives, "q": args.q, "dimension": args.dimension,
                 "length": args.length}
+    if args.scheme == "code":
+        return {"errors": args.errors, "code": args.code}
     return {"pools_per_sample": args.pools_per_sample, "pools": args.pools, "seed": args.seed}
 
 
 def _run_design(args):
     from .design import make_design, optimal_dorfman
-    from .io import check_output_path, write_frame
-    if args.out:
-        check_output_path(args.out)
+    from .io import write_frame
+    _check_outputs(args, out=args.out)
     summary = {}
     if args.optimize:
         if args.scheme != "dorfman":
@@ -326,6 +379,10 @@ def _run_design(args):
         print(json.dumps(summary, indent=2))
     else:
         print("\n".join(design.properties.lines()))
+        if args.scheme == "code" and design.n_samples <= 64:
+            for t in range(design.n_pools):
+                print(f"  pool {design.pool_ids[t]}: "
+                      + " ".join(map(str, design.sample_ids[design.members(t)])))
         print(f"wrote {args.out}")
     return 0
 
@@ -392,12 +449,11 @@ def _add_simulate(sub):
 
 def _run_simulate(args):
     from .design.base import check_count
-    from .io import check_output_path, write_frame
+    from .io import write_frame
     from .run import check_prevalence
     from .simulate import simulate, sweep
     from .simulate.protocols import accepted_options, make_protocol
-    if args.out:
-        check_output_path(args.out)
+    _check_outputs(args, out=args.out)
     prevs, sizes = args.prevalence, args.pool_size
     accepted = accepted_options(args.scheme)  # an unknown scheme fails here, before any work
     for option, value in (("pool_size", sizes), ("rows", args.rows), ("cols", args.cols),
@@ -563,12 +619,12 @@ def _add_calibrate(sub):
                    help="do not write the sensitivity plot (PNG and SVG beside the assay file)")
     p.add_argument("--report", metavar="HTML",
                    help="also write an offline HTML report of the fit and the fitted assay")
+    _add_result_words(p)
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
 
 
 def _run_calibrate(args):
-    from .io import check_output_path
     from .calibrate import calibrate_runs, calibrate_validation
     from .calibrate.plot import figure, plot_paths, write_plots
     from .calibrate.validation import ValidationData
@@ -586,20 +642,18 @@ def _run_calibrate(args):
         if name in fixed:
             raise InputError(f"--fix gives {name!r} twice")
         fixed[name] = value
-    check_output_path(args.out)
-    if args.report:
-        check_output_path(args.report)
     plots = {} if args.no_plot else plot_paths(args.out)
-    for path in plots.values():
-        check_output_path(path)
+    _check_outputs(args, {f"the {kind.upper()} plot beside --out": str(path)
+                          for kind, path in plots.items()}, out=args.out, report=args.report)
     run = None
+    words = _result_words(args)
     if args.validation:
-        data = ValidationData.read(args.validation)
+        data = ValidationData.read(args.validation, words=words)
         result = calibrate_validation(data, args.model, fixed, level=args.level,
                                       intervals=args.intervals, gof_draws=args.gof_draws,
                                       seed=args.seed)
     else:
-        run = Run.read(args.layout, args.readouts, args.samples)
+        run = Run.read(args.layout, args.readouts, args.samples, result_words=words)
         result = calibrate_runs(run, args.model, fixed, level=args.level,
                                 intervals=args.intervals)
     fig = figure(result) if plots else None
@@ -667,12 +721,10 @@ def _add_plan(sub):
 
 def _run_plan(args):
     from .decode import decode
-    from .io import check_output_path, write_frame
+    from .io import write_frame
     from .plan import plan
     report = args.report
-    check_output_path(args.out)
-    if report:
-        check_output_path(report)
+    _check_outputs(args, out=args.out, report=report)
     run, assay = _load_inputs(args)
     if run.n_samples == 0:
         raise InputError("no samples: the layout is empty and no --samples file lists any",

@@ -1,8 +1,8 @@
 """Numba kernels that read two ID columns of a plain CSV file straight into integer codes.
 
 Used by :func:`bayespool.io.read_id_table` for large files that are plain (ASCII, no quotes, no
-whitespace but the newline ending each line), where they give what pandas' reader followed by
-``pd.factorize`` gives, without making a Python string per cell: codes in order of first
+whitespace but the newline ending each line and the separator: comma, semicolon or tab), where they
+give what pandas' reader followed by ``pd.factorize`` gives, without making a Python string per cell: codes in order of first
 appearance, and each distinct ID once. Anything else (a quote, a row with a different number of
 fields, ...) is left to pandas, which knows the full CSV dialect and reports errors.
 """
@@ -11,15 +11,15 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-_COMMA, _NEWLINE = 44, 10
+_NEWLINE = 10
 _FNV_OFFSET, _FNV_PRIME = np.uint64(14695981039346656037), np.uint64(1099511628211)
 _MIX1, _MIX2 = np.uint64(0xFF51AFD7ED558CCD), np.uint64(0xC4CEB9FE1A85EC53)
 
 
 @njit(cache=True)
-def split_fields(raw, start, n_fields, col_a, col_b, a_start, a_end, b_start, b_end):
-    """Byte ranges of columns ``col_a`` and ``col_b`` of every data line from ``start``; blank
-    lines are skipped (as pandas does). Returns the number of rows, or -1 when some line does not
+def split_fields(raw, start, delimiter, n_fields, col_a, col_b, a_start, a_end, b_start, b_end):
+    """Byte ranges of columns ``col_a`` and ``col_b`` of every data line from ``start``, fields
+    separated by the byte ``delimiter``; blank lines are skipped (as pandas does). Returns the number of rows, or -1 when some line does not
     have ``n_fields`` fields."""
     n = len(raw)
     pos = start
@@ -32,7 +32,7 @@ def split_fields(raw, start, n_fields, col_a, col_b, a_start, a_end, b_start, b_
         begin = pos
         while True:
             at_end = pos >= n or raw[pos] == _NEWLINE
-            if at_end or raw[pos] == _COMMA:
+            if at_end or raw[pos] == delimiter:
                 if field == col_a:
                     a_start[rows] = begin
                     a_end[rows] = pos

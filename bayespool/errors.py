@@ -9,15 +9,17 @@ from __future__ import annotations
 class InputError(ValueError):
     """A problem with user input: a file, a value, an option.
 
-    ``str(err)`` reads ``file:line:column: message`` with the parts that are known.
+    ``str(err)`` reads ``file, line L, column C: message`` with the parts that are known; a cell
+    of a spreadsheet reads ``book.xlsx#Sheet, row R, column B`` (``unit="row"``, column letter).
     """
 
     def __init__(self, message: str, file: str | None = None, line: int | None = None,
-                 column: int | str | None = None):
+                 column: int | str | None = None, *, unit: str = "line"):
         self.message = message
         self.file = None if file is None else str(file)
         self.line = line
         self.column = column
+        self.unit = unit
         super().__init__(str(self))
 
     def __str__(self) -> str:
@@ -25,10 +27,11 @@ class InputError(ValueError):
         if self.file is not None:
             where.append(self.file)
         if self.line is not None:
-            where.append(f"line {self.line}")
+            where.append(f"{self.unit} {self.line}")
         if self.column is not None:
             col = self.column
-            where.append(f"column {col}" if isinstance(col, int) else f"column '{col}'")
+            where.append(f"column {col}" if isinstance(col, int) or self.unit == "row"
+                         else f"column '{col}'")
         prefix = ", ".join(where)
         return f"{prefix}: {self.message}" if prefix else self.message
 

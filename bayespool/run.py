@@ -15,26 +15,9 @@ import pandas as pd
 
 from .defaults import PREVALENCE
 from .errors import InputError
-from .io import CodedTable, Table, read_id_table, read_table
-
-POSITIVE_WORDS = ("positive", "pos", "1")
-NEGATIVE_WORDS = ("negative", "neg", "0")
-INVALID_WORDS = ("invalid",)
-_RESULT = {**{w: 1 for w in POSITIVE_WORDS}, **{w: 0 for w in NEGATIVE_WORDS},
-           **{w: -1 for w in INVALID_WORDS}}
-
-
-def parse_results(table: Table, column: str = "result") -> np.ndarray:
-    """Result words of a table as 1 (positive), 0 (negative) or -1 (invalid, to be skipped)."""
-    f = table.frame
-    words = f[column].str.lower().map(_RESULT)
-    unknown = words.isna().to_numpy()
-    if unknown.any():
-        r = int(np.flatnonzero(unknown)[0])
-        raise table.error(f"result {f[column].iat[r]!r} is not one of positive/negative "
-                          "(also pos/neg, 1/0) or invalid", r, column)
-    return words.to_numpy(dtype=np.int64)
-
+from .io import CodedTable, FrameTable, Table, read_id_table, read_table
+from .results import parse_results, skipped_note
+from .wells import check_wells
 
 def check_prevalence(value, name: str = "--prevalence") -> float:
     """A prevalence strictly between 0 and 1 (NaN and infinities refused)."""
@@ -163,38 +146,36 @@ class Run(PoolIncidence):
                    pool_ptr, pool_members, sample_ptr, sample_pools, npos, nneg)
 
     @classmethod
-    def read(cls, layout, readouts=None, samples=None, prevalence: float = PREVALENCE) -> "Run":
-        """Read and validate the layout, readouts and samples files (interface.md)."""
+    def read(cls, layout, readouts=None, samples=None, prevalence: float = PREVALENCE, *,
+             result_words: dict | None = None) -> "Run":
+        """Read and validate the layout, readouts and samples files (interface.md).
+
+        ``result_words`` adds a laboratory's own result words (word -> positive, negative or
+        skip; see :func:`bayespool.results.result_words`).
+        """
         lay = read_id_table(layout, ("pool", "sample"), "layout")
         rd = read_table(readouts, ["pool", "result"], "readouts") if readouts is not None else None
         sm = read_table(samples, ["sample"], "samples") if samples is not None else None
-        run = cls.from_tables(lay, rd, sm, prevalence)
+        run = cls.from_tables(lay, rd, sm, prevalence, words=result_words)
         run.sources.update({"layout": str(layout), "readouts": None if readouts is None else
                             str(readouts), "samples": None if samples is None else str(samples)})
         return run
 
     @classmethod
     def from_frames(cls, layout: pd.DataFrame, readouts: pd.DataFrame | None = None,
-                    samples: pd.DataFrame | None = None, prevalence: float = PREVALENCE) -> "Run":
-        """Build from DataFrames with the columns of the files (values converted to strings)."""
-        def table(df, name):
-            if df is None:
-                return None
-            f = df.astype(str).apply(lambda c: c.str.strip())
-            f = f.replace({"nan": "", "None": "", "<NA>": ""})
-            return Table(f.reset_index(drop=True), f"<{name}>", [str(c) for c in f.columns])
-        for df, cols, name in ((layout, ["pool", "sample"], "layout"),
-                               (readouts, ["pool", "result"], "readouts"),
-                               (samples, ["sample"], "samples")):
-            if df is not None:
-                missing = [c for c in cols if c not in df.columns]
-                if missing:
-                    raise InputError(f"{name} lacks column(s) {', '.join(missing)}")
-        return cls.from_tables(table(layout, "layout"), table(readouts, "readouts"),
-                               table(samples, "samples"), prevalence)
+                    samples: pd.DataFrame | None = None, prevalence: float = PREVALENCE, *,
+                    result_words: dict | None = None) -> "Run":
+        """Build from DataFrames with the columns of the files (values converted to strings;
+        column names matched case-insensitively; errors name the 0-based row)."""
+        tables = [None if df is None else FrameTable(df, f"<{name}>", cols, name)
+                  for df, cols, name in ((layout, ["pool", "sample"], "layout"),
+                                         (readouts, ["pool", "result"], "readouts"),
+                                         (samples, ["sample"], "samples"))]
+        return cls.from_tables(*tables, prevalence, words=result_words)
 
     @classmethod
-    def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence) -> "Run":
+    def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence, *,
+                    words: dict | None = None) -> "Run":
         prevalence = check_prevalence(prevalence)
         # IDs are factorised once (a large plain file comes already coded); every later check
         # works on the integer codes
@@ -228,6 +209,7 @@ class Run(PoolIncidence):
             if dup.any():
                 r = int(np.flatnonzero(dup)[0])
                 raise sm.error(f"sample {sf['sample'].iat[r]!r} is listed twice", r, "sample")
+            check_wells(sm)
             extra = ~pd.Index(sf["sample"]).isin(pd.Index(sample_ids))
             if extra.any():
                 sample_ids = np.concatenate([sample_ids, sf["sample"].to_numpy()[extra]])
@@ -235,14 +217,12 @@ class Run(PoolIncidence):
             pos = index.get_indexer(sf["sample"])
             prior_values = np.full(len(sample_ids), prevalence)
             if "prior" in sf.columns:
-                raw = sf["prior"].str.strip()
-                given = (raw != "").to_numpy()
-                vals = pd.to_numeric(raw.where(given, "nan"), errors="coerce").to_numpy(dtype=float)
+                vals, given = sm.numbers("prior")
                 bad = given & ~((vals > 0) & (vals < 1))
                 if bad.any():
                     r = int(np.flatnonzero(bad)[0])
-                    raise sm.error(f"prior {raw.iat[r]!r} must be a probability strictly between "
-                                   "0 and 1", r, "prior")
+                    raise sm.error(f"prior {sf['prior'].iat[r].strip()!r} must be a probability "
+                                   "strictly between 0 and 1", r, "prior")
                 prior_values[pos[given]] = vals[given]
             samples_frame = sf.copy()
             samples_frame.index = pos
@@ -259,28 +239,33 @@ class Run(PoolIncidence):
                          "their probability stays at the prior")
         if rd is not None:
             rf = rd.frame
-            res = parse_results(rd)
+            res = parse_results(rd, words=words)
             pidx = pd.Index(pool_ids).get_indexer(rf["pool"])
             missing = pidx < 0
             if missing.any():
                 r = int(np.flatnonzero(missing)[0])
                 raise rd.error(f"pool {rf['pool'].iat[r]!r} has a readout but is not in the layout",
                                r, "pool")
-            skipped = int((res < 0).sum())
+            skipped = skipped_note(rd, res)
             if skipped:
-                msg = f"{skipped} invalid readout(s) skipped"
-                warnings.warn(msg, stacklevel=2)
-                notes.append(msg)
+                warnings.warn(skipped, stacklevel=2)
+                notes.append(skipped)
             keep = res >= 0
             readout_pool, readout_result = pidx[keep], res[keep]
             if "ct" in rf.columns:
-                raw = rf["ct"].str.strip()
-                given = (raw != "").to_numpy()
-                vals = pd.to_numeric(raw.where(given, "nan"), errors="coerce").to_numpy(dtype=float)
+                vals, given = rd.numbers("ct")
                 bad = given & ~(np.isfinite(vals) & (vals > 0))
                 if bad.any():
                     r = int(np.flatnonzero(bad)[0])
-                    raise rd.error(f"ct {raw.iat[r]!r} must be a positive number or blank", r, "ct")
+                    raise rd.error(f"ct {rf['ct'].iat[r].strip()!r} must be a positive number or "
+                                   "blank", r, "ct")
+                odd = np.flatnonzero(given & (res == 0))
+                if len(odd):
+                    lines = ", ".join(map(str, rd.lines(odd[:10])))
+                    more = f" and {len(odd) - 10} more" if len(odd) > 10 else ""
+                    notes.append(f"{rd.path}: {len(odd)} negative readout(s) carry a Ct value "
+                                 f"(line{'s' if len(odd) > 1 else ''} {lines}{more}); they are "
+                                 "read as negative: check the result or the Ct")
                 ct_frame = pd.DataFrame({"pool": pidx[keep], "result": res[keep],
                                          "ct": vals[keep]})
         run = cls.from_arrays(pool_codes, sample_codes, n, len(pool_ids), prior, readout_pool,

@@ -14,7 +14,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..io import Table, read_table
-from ..run import parse_results
+from ..results import parse_results, skipped_note
 
 COLUMNS = ["pool_size", "positives", "result"]
 
@@ -77,11 +77,11 @@ class ValidationData:
         return int(neg.sum()), int((self.result[neg] == 0).sum())
 
     @classmethod
-    def read(cls, path) -> "ValidationData":
+    def read(cls, path, *, words: dict | None = None) -> "ValidationData":
         """Read and check a validation CSV (interface.md); bad cells raise InputError with the line
         and column."""
         table = read_table(path, COLUMNS, "validation")
-        data = cls.from_table(table)
+        data = cls.from_table(table, words=words)
         data.source = str(path)
         return data
 
@@ -122,7 +122,8 @@ class ValidationData:
         return cls(k, d, y.astype(np.int8), "<arrays>")
 
     @classmethod
-    def from_table(cls, table: Table, name: str | None = None) -> "ValidationData":
+    def from_table(cls, table: Table, name: str | None = None, *,
+                   words: dict | None = None) -> "ValidationData":
         f = table.frame
         if len(f) == 0:
             raise InputError("validation file has a header but no rows", table.path)
@@ -132,10 +133,10 @@ class ValidationData:
         if over.any():
             r = int(np.flatnonzero(over)[0])
             raise table.error(f"positives = {d[r]} exceeds pool_size = {k[r]}", r, "positives")
-        res = parse_results(table)
+        res = parse_results(table, words=words)
         keep = res >= 0
         skipped = int((~keep).sum())
-        notes = [f"{skipped} invalid readout(s) skipped"] if skipped else []
+        notes = [skipped_note(table, res)] if skipped else []
         if not keep.any():
             raise InputError("validation file has no valid readouts (every row is invalid)",
                              table.path)

@@ -2,12 +2,14 @@
 
 Each scheme is a function returning a :class:`Design` (``.layout`` the ``pool,sample`` table,
 ``.properties`` its numbers): :func:`dorfman_design`, :func:`array_design`,
-:func:`kautz_singleton_design`, :func:`random_design`; :func:`make_design` picks one by name.
+:func:`kautz_singleton_design`, :func:`random_design`, :func:`code_design` (codewords of an
+error-correcting code); :func:`make_design` picks one by name.
 """
 from __future__ import annotations
 
 from .array import array_design
 from .base import Design, DesignProperties
+from .code import code_design, nearest_specimen
 from .closed_form import (DorfmanExpectation, DorfmanOptimum, dorfman_cohort_expected,
                           dorfman_expected,
                           dorfman_tests_per_specimen, individual_expected, optimal_dorfman)
@@ -22,10 +24,11 @@ SCHEMES = {
     "array": array_design,
     "kautz-singleton": kautz_singleton_design,
     "random": random_design,
+    "code": code_design,
 }
 
 __all__ = ["Design", "DesignProperties", "SCHEMES", "make_design", "dorfman_design", "array_design",
-           "kautz_singleton_design", "random_design", "noiseless_decode", "pool_results",
+           "kautz_singleton_design", "random_design", "code_design", "nearest_specimen", "noiseless_decode", "pool_results",
            "dorfman_expected", "dorfman_cohort_expected", "individual_expected",
            "dorfman_tests_per_specimen",
            "optimal_dorfman", "DorfmanExpectation", "DorfmanOptimum", "Specimens", "specimens"]

@@ -55,14 +55,12 @@ def read_samples(path) -> Specimens:
         raise table.error(f"sample {f['sample'].iat[r]!r} is listed twice", r, "sample")
     prior = None
     if "prior" in f.columns:
-        raw = f["prior"].str.strip()
-        given = (raw != "").to_numpy()
-        vals = pd.to_numeric(raw.where(given, "nan"), errors="coerce").to_numpy(dtype=float)
+        vals, given = table.numbers("prior")
         bad = given & ~((vals > 0) & (vals < 1))
         if bad.any():
             r = int(np.flatnonzero(bad)[0])
-            raise table.error(f"prior {raw.iat[r]!r} must be a probability strictly between 0 "
-                              "and 1", r, "prior")
+            raise table.error(f"prior {f['prior'].iat[r].strip()!r} must be a probability "
+                              "strictly between 0 and 1", r, "prior")
         prior = vals
     return Specimens(f["sample"].to_numpy(dtype=object), prior, str(path))
 

@@ -83,8 +83,10 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
 
 def write_report(path, run=None, assay=None, posterior=None, plan=None, calibration=None,
                  title=None, **options) -> Path:
-    """Write the report to ``path`` atomically (see :func:`build_report` for ``options``)."""
-    from ..io import check_output_path, write_text
+    """Write the report to ``path`` atomically (see :func:`build_report` for ``options``); a path
+    that is one of the run's input files is refused."""
+    from ..io import check_output_path, check_outputs, write_text
+    check_outputs({"path": path}, (run.sources if run is not None else {}))
     target = check_output_path(path)
     html = build_report(run, assay, posterior, plan, calibration, title,
                         file_name=options.pop("file_name", target.name), **options)

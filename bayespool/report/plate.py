@@ -1,40 +1,22 @@
 """The plate map: each specimen in its well, coloured by its probability, the value printed in it.
 
 Drawn when the samples file has a ``well`` column (``plate`` too when there are several plates).
-Wells are a row letter and a column number (``A1``, ``B07``, ``P24``); a plate whose wells all fit
-8 x 12 is drawn as a 96-well plate, otherwise as a 384-well plate (16 x 24), the two standard
-microplate formats (ANSI/SLAS 1-2004 footprint, common practice). Specimens without a usable well
-are listed under the map; they are in the calls table like every other.
+Wells are read by :mod:`bayespool.wells` (the samples file refuses wells that are not real or
+taken twice); a plate whose wells all fit 8 x 12 is drawn as a 96-well plate, otherwise as a
+384-well plate. Specimens without a usable well are listed under the map; they are in the calls
+table like every other.
 """
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
 
+from ..wells import FORMATS, parse_well, plate_format
 from . import formatting as fmt
 from .escape import text
 from .markup import el
 from .palette import styles
 
-WELL = re.compile(r"^\s*([A-Za-z])\s*0*([1-9][0-9]?)\s*$")
-FORMATS = {96: (8, 12), 384: (16, 24)}
 MARKS = {"positive": "+", "inconclusive": "?", "negative": ""}
-
-
-def parse_well(value) -> tuple[int, int] | None:
-    """0-based (row, column) of a well name such as ``A1`` or ``h12``; None if it is not one."""
-    m = WELL.match(str(value))
-    if not m:
-        return None
-    return ord(m.group(1).upper()) - ord("A"), int(m.group(2)) - 1
-
-
-def plate_format(rows, cols) -> int | None:
-    """96 or 384 for the smallest standard plate holding wells at these 0-based rows and columns."""
-    for wells, (n_rows, n_cols) in FORMATS.items():
-        if max(rows) < n_rows and max(cols) < n_cols:
-            return wells
-    return None
 
 
 @dataclass
