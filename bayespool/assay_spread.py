@@ -111,8 +111,9 @@ def integrate(assay: Assay, source: str | None = None) -> IntegratedAssay:
             raise InputError(f"[fit.uncertainty] specificity_beta = {spec!r}: both parameters "
                              "must be positive", source)
         spec_beta = (a, b)
-    return IntegratedAssay(assay.specificity, assay.sensitivity, assay.details, spec_beta,
-                           tuple(_sensitivity_draws(assay, spread, source)))
+    return IntegratedAssay(assay.specificity, assay.sensitivity, assay.details,
+                           getattr(assay, "results", {}), spec_beta=spec_beta,
+                           sens_draws=tuple(_sensitivity_draws(assay, spread, source)))
 
 
 def _sensitivity_draws(assay: Assay, spread: dict, source) -> list:
