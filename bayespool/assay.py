@@ -215,6 +215,11 @@ class Assay:
         _prob(self.specificity, "specificity", None)
 
     # ---- the model
+    @property
+    def ct(self):
+        """The Ct load model (:class:`bayespool.ct.CtModel`) of a ``[ct]`` assay, else None."""
+        return getattr(self.sensitivity, "ct", None)
+
     def se(self, k, d) -> np.ndarray:
         return self.sensitivity(k, d)
 
@@ -239,6 +244,10 @@ class Assay:
         with ``log 0 = -inf`` where Se or Sp is 1 (hard constraints, exact). Memory is linear in the
         number of memberships.
         """
+        if self.ct is not None:  # replicates share the pool's Ct: integrate, do not multiply
+            from .ct_evidence import PoolCtStats, pool_log_likelihood
+            stats = PoolCtStats.binary(n_positive, n_negative)
+            return pool_log_likelihood(self, pool_size, stats)
         k = np.asarray(pool_size, dtype=np.int64)
         npos = np.asarray(n_positive, dtype=float)
         nneg = np.asarray(n_negative, dtype=float)
@@ -254,7 +263,8 @@ class Assay:
 
     # ---- the file
     def to_dict(self) -> dict:
-        out = {"specificity": self.specificity, "sensitivity": self.sensitivity.to_dict()}
+        key = "ct" if self.ct is not None else "sensitivity"
+        out = {"specificity": self.specificity, key: self.sensitivity.to_dict()}
         if self.results:
             out["results"] = self.results
         if self.details:
@@ -271,7 +281,16 @@ class Assay:
     @classmethod
     def from_dict(cls, data: dict, source: str | None = None) -> "Assay":
         sp = _prob(_get(data, "specificity", "the assay file", source), "specificity", source)
-        sens = sensitivity_from_dict(_get(data, "sensitivity", "the assay file", source), source)
+        if "ct" in data:
+            if "sensitivity" in data:
+                raise InputError("the assay file has both a [ct] table and a [sensitivity] table; "
+                                 "a [ct] assay implies its sensitivity, so keep only one of them",
+                                 source)
+            from .ct import CtModel, CtSensitivity
+            sens = CtSensitivity(CtModel.from_dict(data["ct"], source))
+        else:
+            sens = sensitivity_from_dict(_get(data, "sensitivity", "the assay file", source),
+                                         source)
         details = data.get("fit", {}) if isinstance(data.get("fit", {}), dict) else {}
         results = data.get("results", {})
         if not isinstance(results, dict):
@@ -286,6 +305,8 @@ class Assay:
 
     def describe(self) -> str:
         s = self.sensitivity
+        if self.ct is not None:
+            return f"ct: {self.ct.describe()}, Sp = {self.specificity:g}"
         if s.model == "constant":
             se = f"Se = {s.value:g}"
         elif s.model == "dilution":
@@ -301,3 +322,28 @@ DEFAULT_ASSAY = Assay(0.99, ConstantSensitivity(0.95))
 def read_assay(path) -> Assay:
     """Read an assay TOML file (interface.md)."""
     return Assay.read(path)
+
+
+DEFAULT_POOL_SIZES = (1, 2, 4, 8, 16, 32)
+
+
+def sensitivity_table(assay: Assay, pool_sizes=None):
+    """Se(k, d) for every pool size k and d = 1..k, as a DataFrame (pool_size, positives, value).
+
+    ``pool_sizes`` defaults to the table's pool sizes for a ``table`` assay and to
+    :data:`DEFAULT_POOL_SIZES` otherwise; a size the assay does not cover raises InputError.
+    """
+    import pandas as pd
+    if pool_sizes is None:
+        s = assay.sensitivity
+        pool_sizes = sorted({e[0] for e in s.entries}) if s.model == "table" else DEFAULT_POOL_SIZES
+    sizes = []
+    for k in pool_sizes:
+        if isinstance(k, bool) or int(k) != k or k < 1:
+            raise InputError(f"pool_sizes must be whole numbers >= 1, got {k!r}")
+        sizes.append(int(k))
+    sizes = sorted(set(sizes))
+    assay.sensitivity.check_pool_sizes(np.array(sizes), None)
+    k = np.repeat(sizes, sizes)
+    d = np.concatenate([np.arange(1, s + 1) for s in sizes])
+    return pd.DataFrame({"pool_size": k, "positives": d, "value": assay.se(k, d)})

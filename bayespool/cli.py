@@ -127,6 +127,98 @@ def _note(args, text: str) -> None:
     print(f"bayespool {args.command}: note: {text}", file=sys.stderr)
 
 
+def _add_worklist_options(p) -> None:
+    g = p.add_argument_group("worklist (transfers that build the pools; needs wells in --samples)")
+    g.add_argument("--worklist", metavar="CSV",
+                   help="also write the transfers: source_plate,source_well,destination_plate,"
+                   "destination_well,volume_ul,sample,pool")
+    g.add_argument("--pool-volume", type=float, default=200.0, metavar="UL",
+                   help="microlitres in each pool; every member gives UL / k (default: "
+                   "%(default)s)")
+    g.add_argument("--destination-plate-size", type=int, choices=(96, 384), default=96,
+                   help="wells per destination plate (default: %(default)s)")
+    g.add_argument("--destination-prefix", default="POOLS", metavar="NAME",
+                   help="destination plates are NAME1, NAME2, ... (default: %(default)s)")
+    g.add_argument("--reserve-wells", default=None, metavar="WELLS",
+                   help="comma-separated wells left empty on every destination plate for "
+                   "controls, e.g. G12,H12")
+
+
+def _write_worklist(args, layout, samples, skip_pools=()):
+    from .io import write_frame
+    from .worklist import build_worklist
+    reserve = ([w.strip() for w in args.reserve_wells.split(",") if w.strip()]
+               if args.reserve_wells else None)
+    try:
+        wl = build_worklist(layout, samples, pool_volume=args.pool_volume,
+                            plate_size=args.destination_plate_size,
+                            prefix=args.destination_prefix, reserve=reserve,
+                            skip_pools=skip_pools)
+    except InputError as exc:
+        msg = str(exc)
+        for param, flag in (("pool_volume", "--pool-volume"),
+                             ("destination_plate_size", "--destination-plate-size"),
+                             ("destination_prefix", "--destination-prefix")):
+            msg = msg.replace(param, flag)
+        raise InputError(msg) from None
+    write_frame(wl.frame, args.worklist)
+    return wl
+
+
+# ---- assay
+def _add_assay(sub):
+    p = sub.add_parser("assay", help="show what an assay file implies: the model and Se(k, d)",
+                       description="Print an assay file's model and the sensitivity it implies "
+                       "for every pool size k and number of positive members d = 1..k (for a "
+                       "[ct] assay, integrated over the individual Cts of the positives). "
+                       + CAUTION)
+    p.add_argument("assay_file", metavar="ASSAY.toml", help="the assay file")
+    p.add_argument("--pool-sizes", type=_int_list, default=None, metavar="K,K,...",
+                   help="pool sizes to tabulate (default: 1,2,4,8,16,32, or a table's own sizes)")
+    p.add_argument("--plot", metavar="FILE", help="also draw the curve (.svg or .png)")
+    p.add_argument("--json", action="store_true",
+                   help='print {"specificity": ..., "sensitivity": [{"pool_size", "positives", '
+                   '"value"}, ...]}')
+    return p
+
+
+def _run_assay(args):
+    from .assay import Assay, sensitivity_table
+    plot = args.plot
+    if plot:
+        from .io import check_output_path
+        check_output_path(plot)
+        if not plot.lower().endswith((".svg", ".png")):
+            raise InputError(f"--plot {plot!r}: the file name must end in .svg or .png")
+        if os.path.abspath(plot) == os.path.abspath(args.assay_file):
+            raise InputError("--plot must not overwrite the assay file")
+    assay = Assay.read(args.assay_file)
+    table = sensitivity_table(assay, args.pool_sizes)
+    if plot:
+        from .report.plots import write_sensitivity_plot
+        write_sensitivity_plot(assay, plot, table["pool_size"].unique())
+    if args.json:
+        out = {"specificity": assay.specificity,
+               "sensitivity": [{"pool_size": int(r.pool_size), "positives": int(r.positives),
+                                "value": float(r.value)} for r in table.itertuples()]}
+        print(json.dumps(out, indent=2))
+        return 0
+    print(f"{args.assay_file}: {assay.describe()}")
+    sizes = list(table["pool_size"].unique())
+    shown = min(max(sizes), 8)
+    print(f"Se(k, d): P(a readout amplifies | pool of k, d positive members)"
+          + (f"; d > {shown} in --json" if max(sizes) > shown else ""))
+    print("     k " + "".join(f"{'d=' + str(d):>9}" for d in range(1, shown + 1)))
+    for k in sizes:
+        vals = table[table["pool_size"] == k].set_index("positives")["value"]
+        print(f"{k:>6} " + "".join(f"{vals[d]:>9.4f}" if d <= k else " " * 9
+                                   for d in range(1, shown + 1)))
+    print(f"no positive member: P(amplifies) = 1 - Sp = {1 - assay.specificity:.4g}")
+    if plot:
+        print(f"wrote {plot}")
+    return 0
+
+
 # ---- decode
 def _add_decode(sub):
     from .defaults import BP_DAMPING, BP_MAX_SWEEPS, BP_TOLERANCE, METHODS
@@ -299,8 +391,12 @@ def _add_design(sub):
     p.add_argument("--max-pool-size", type=int, metavar="K",
                    help="no pool may hold more than K specimens")
     p.add_argument("--pool-size", type=int, metavar="K", help="dorfman: specimens per pool")
+    p.add_argument("--fill", choices=("columns", "rows"),
+                   help="dorfman on plates (samples file with plate and well): pool neighbouring "
+                   "wells down the columns (A1, B1, ...; default) or along the rows (A1, A2, ...)")
     p.add_argument("--rows", type=int, metavar="R",
-                   help="array: rows per grid (default 8 x 12, or near-square for few specimens)")
+                   help="array: rows per grid (default 8 x 12, or near-square for few specimens; "
+                   "on plates, the plate's own rows and columns, or R x C tiles laid on it)")
     p.add_argument("--cols", type=int, metavar="C", help="array: columns per grid")
     p.add_argument("--positives", type=int, metavar="D",
                    help="kautz-singleton: positives to single out without test error")
@@ -326,12 +422,13 @@ def _add_design(sub):
     p.add_argument("--assay", metavar="TOML",
                    help="with --optimize: the assay (default: an error-free test, as Dorfman 1943)")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    _add_worklist_options(p)
     return p
 
 
 def _design_options(args) -> dict:
     if args.scheme == "dorfman":
-        return {"pool_size": args.pool_size}
+        return {"pool_size": args.pool_size, "fill": args.fill}
     if args.scheme == "array":
         return {"rows": args.rows, "cols": args.cols}
     if args.scheme == "kautz-singleton":
@@ -345,7 +442,7 @@ def _design_options(args) -> dict:
 def _run_design(args):
     from .design import make_design, optimal_dorfman
     from .io import write_frame
-    _check_outputs(args, out=args.out)
+    _check_outputs(args, out=args.out, worklist=args.worklist)
     summary = {}
     if args.optimize:
         if args.scheme != "dorfman":
@@ -370,15 +467,26 @@ def _run_design(args):
                 print(json.dumps(summary, indent=2))
             return 0
         raise InputError("give both --samples N|CSV and --out LAYOUT.csv")
-    design = make_design(args.scheme, args.samples, max_pool_size=args.max_pool_size,
+    from .design.specimens import specimens
+    spec = specimens(args.samples)
+    if args.worklist and (spec.table is None or "well" not in spec.table.columns):
+        raise InputError("--worklist needs --samples to be a samples file with a well column "
+                         "(and plate)")
+    design = make_design(args.scheme, spec, max_pool_size=args.max_pool_size,
                          **_design_options(args))
+    wl = _write_worklist(args, design.layout, spec.table) if args.worklist else None
     write_frame(design.layout, args.out)
     if args.json:
         summary.update(design.properties.to_dict())
         summary["out"] = args.out
+        if wl is not None:
+            summary["worklist"] = dict(wl.summary(), out=args.worklist)
         print(json.dumps(summary, indent=2))
     else:
         print("\n".join(design.properties.lines()))
+        if wl is not None:
+            print("\n".join(wl.lines()))
+            print(f"wrote {args.worklist}")
         if args.scheme == "code" and design.n_samples <= 64:
             for t in range(design.n_pools):
                 print(f"  pool {design.pool_ids[t]}: "
@@ -620,6 +728,9 @@ def _add_calibrate(sub):
     p.add_argument("--report", metavar="HTML",
                    help="also write an offline HTML report of the fit and the fitted assay")
     _add_result_words(p)
+    p.add_argument("--allow-unidentified", action="store_true",
+                   help="past runs: write the fit even when the data cannot identify it (it is "
+                   "marked so in the file); without this such a fit is refused with the reason")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
 
@@ -656,6 +767,8 @@ def _run_calibrate(args):
         run = Run.read(args.layout, args.readouts, args.samples, result_words=words)
         result = calibrate_runs(run, args.model, fixed, level=args.level,
                                 intervals=args.intervals)
+        if not args.allow_unidentified:
+            result.check_identified()
     fig = figure(result) if plots else None
     result.assay.write(args.out)
     if plots:
@@ -716,6 +829,7 @@ def _add_plan(sub):
     p.add_argument("--report", metavar="HTML",
                    help="also write an offline HTML report with the planned pools")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    _add_worklist_options(p)
     return p
 
 
@@ -724,7 +838,9 @@ def _run_plan(args):
     from .io import write_frame
     from .plan import plan
     report = args.report
-    _check_outputs(args, out=args.out, report=report)
+    _check_outputs(args, out=args.out, report=report, worklist=args.worklist)
+    if args.worklist and not args.samples:
+        raise InputError("--worklist needs --samples with the specimens' plate and well")
     run, assay = _load_inputs(args)
     if run.n_samples == 0:
         raise InputError("no samples: the layout is empty and no --samples file lists any",
@@ -735,6 +851,12 @@ def _run_plan(args):
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked)
     frame = result.to_frame()
+    wl = None
+    if args.worklist:
+        replicates = frame.loc[frame["kind"] == "replicate", "pool"].unique()
+        samples = run.samples.copy()
+        samples["sample"] = run.sample_ids[samples.index.to_numpy()]
+        wl = _write_worklist(args, frame, samples, skip_pools=replicates)
     write_frame(frame, args.out)
     if report:
         from .report import write_report
@@ -745,6 +867,8 @@ def _run_plan(args):
         summary = result.summary()
         summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe(),
                         "assay_uncertainty": args.assay_uncertainty})
+        if wl is not None:
+            summary["worklist"] = dict(wl.summary(), out=args.worklist)
         print(json.dumps(summary, indent=2))
     elif result.decided:
         print(f"every sample is decided ({run.n_samples} samples): no test to plan; wrote a "
@@ -756,10 +880,14 @@ def _run_plan(args):
         print(f"planned {result.n_tests} pools ({len(result.pool_members)} memberships), "
               f"expected information {result.total_information:.2f} bits; wrote {args.out}"
               + (f" and {report}" if report else ""))
+        if wl is not None:
+            print("\n".join(wl.lines()))
+            print(f"wrote {args.worklist}")
     return 0
 
 
 COMMANDS = {
+    "assay": (_add_assay, _run_assay),
     "decode": (_add_decode, _run_decode),
     "demo": (_add_demo, _run_demo),
     "design": (_add_design, _run_design),

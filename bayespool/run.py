@@ -117,6 +117,9 @@ class Run(PoolIncidence):
 
     def log_likelihood(self, assay):
         """Per-pool log L_t[d] as (ptr, values); see :meth:`bayespool.assay.Assay.log_likelihood`."""
+        if assay.ct is not None:  # Ct readouts: likelihoods integrated over individual Cts
+            from .ct_evidence import PoolCtStats, pool_log_likelihood
+            return pool_log_likelihood(assay, self.pool_size, PoolCtStats.from_run(self, assay.ct))
         tested = (self.n_positive + self.n_negative) > 0
         assay.sensitivity.check_pool_sizes(self.pool_size[tested], self.sources.get("assay"))
         return assay.log_likelihood(self.pool_size, self.n_positive, self.n_negative)

@@ -238,8 +238,15 @@ def test_random_design_from_max_pool_size():
 
 
 def test_random_design_wraparound_is_distinct_for_tight_pools():
-    # w close to the number of pools forces many windows across permutations
-    design = random_design(101, 4, pools=5, seed=3)
+    # w close to the number of pools forces many windows across permutations; 101 specimens in
+    # 4 of 5 pools must repeat a set (only 5 exist), so the design itself is refused and the
+    # dealing is checked directly
+    from bayespool.design.random_design import deal_memberships
+    table = deal_memberships(101, 4, 5, np.random.default_rng(3))
+    assert all(len(set(row)) == 4 for row in table.tolist())
+    with pytest.raises(InputError, match="only 5 distinct sets of 4"):
+        random_design(101, 4, pools=5, seed=3)
+    design = random_design(5, 4, pools=5, seed=3)
     assert np.all(incidence(design).sum(axis=0) == 4)
 
 
@@ -255,3 +262,26 @@ def test_make_design_and_samples_file(tmp_path):
     with pytest.raises(InputError, match="twice") as err:
         make_design("dorfman", str(bad), pool_size=2)
     assert err.value.line == 3
+
+
+# ---- random designs never give two specimens the same pools
+@pytest.mark.parametrize("n, w, t", [(60, 2, 12), (66, 2, 12), (200, 3, 12), (300, 2, 30)])
+def test_random_design_gives_every_specimen_its_own_set_of_pools(n, w, t):
+    # brute force over all pairs: identical pool sets could never be told apart by any readouts;
+    # the swaps that separate them keep pool sizes within one of each other
+    for seed in range(5):
+        d = make_design("random", n, pools_per_sample=w, pools=t, seed=seed)
+        sets = [frozenset(d.pool_ids[d.pool_ptr.searchsorted(np.flatnonzero(d.pool_members == i),
+                                                             side="right") - 1])
+                for i in range(n)]
+        assert all(len(s) == w for s in sets)
+        assert len(set(sets)) == n
+        sizes = np.diff(d.pool_ptr)
+        assert sizes.max() - sizes.min() <= 1
+        assert d.properties.max_overlap < w
+
+
+def test_random_design_refuses_more_specimens_than_sets_of_pools():
+    # pigeonhole: 12 pools give C(12, 2) = 66 distinct pairs, so 67 specimens must share one
+    with pytest.raises(InputError, match="only 66 distinct sets of 2"):
+        make_design("random", 67, pools_per_sample=2, pools=12, seed=0)

@@ -102,3 +102,14 @@ def test_design_errors_are_one_line_and_leave_outputs_alone(cli, tmp_path):
         assert r.code == 2, args
         assert len(r.err.strip().splitlines()) == 1 and "Traceback" not in r.err, r.err
     assert out.read_text(encoding="utf-8") == "keep me\n"
+
+
+def test_random_design_prints_the_largest_overlap(cli, tmp_path):
+    out = tmp_path / "layout.csv"
+    r = cli("design", "--scheme", "random", "--samples", 60, "--pools", 12, "--pools-per-sample",
+            2, "--seed", 3, "--out", out)
+    assert r.code == 0, r.err
+    assert "two specimens share at most 1 pool" in r.out
+    other = tmp_path / "other.csv"
+    r = cli("design", "--scheme", "random", "--samples", 67, "--pools", 12, "--out", other)
+    assert r.code == 2 and "never be told apart" in r.err and not other.exists()

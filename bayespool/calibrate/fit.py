@@ -408,6 +408,8 @@ def fit_details(result: Calibration) -> dict:
     for name, path in result.sources.items():
         if path:
             out[f"source_{name}"] = str(path)
+    if result.identifiable is not None:
+        out["identified"] = bool(result.identifiable)
     for key, value in result.extra.items():
         if isinstance(value, (int, float, str, bool)) and not isinstance(value, np.generic):
             out[key] = value

@@ -24,9 +24,6 @@ from .space import Space
 
 FLAT = 1e-7  # smallest / largest eigenvalue of the information below this is a ridge
 
-ADVICE = ("fix a parameter you know from elsewhere (for example --fix specificity=VALUE from a "
-          "validation), or add individual follow-up tests or another pool size")
-
 
 @dataclass
 class Identifiability:
@@ -34,6 +31,42 @@ class Identifiability:
     flat: bool = False        # the information matrix has a ridge
     reasons: list = field(default_factory=list)
     warnings: list = field(default_factory=list)
+    advice: str = ""          # what would identify the fit, for the data at hand
+
+    def refusal(self) -> str:
+        """One line: why the fit cannot become the assay, and what to do."""
+        return ("the past runs do not identify the assay (Hui & Walter 1980): "
+                + "; ".join(self.reasons) + "; the estimates along that direction are arbitrary, "
+                "so no assay file was written. To fix: " + self.advice
+                + " (--allow-unidentified writes the fit anyway, marked as not identified)")
+
+
+def advice(run, read: np.ndarray, fam: Family, space: Space) -> str:
+    """What would identify the fit, given what these runs already hold: individual tests are
+    suggested only when there are none, another pool size only when one is missing."""
+    sizes = run.pool_size[read]
+    pooled = np.unique(sizes[sizes > 1])
+    has_singles = bool((sizes == 1).any())
+    free = [p.name for p in space.free_params]
+    steps = []
+    known = [n for n in ("specificity", "se_max") if n in free]
+    if known:
+        steps.append("fix a value known from elsewhere (" + " or ".join(
+            f"--fix {n}=VALUE" for n in known) + ")")
+    steps.append("calibrate from a validation run with known positives (--validation)")
+    if not has_singles:
+        steps.append("add the individual follow-up tests of positive pools to the layout and "
+                     "readouts")
+    if fam.name == "dilution":
+        curve = [n for n in ("se_max", "r50", "slope") if n in free]
+        if len(pooled) + has_singles < len(curve):
+            steps.append(f"add runs with another pool size (these hold only "
+                         f"{', '.join(str(int(k)) for k in pooled) or 'none'}"
+                         f"{' and individual tests' if has_singles else ''})")
+        steps.append("or a simpler sensitivity model (--model constant)")
+    elif len(pooled) < 2 and not has_singles:
+        steps.append("or add runs with another pool size")
+    return "; ".join(steps)
 
 
 def design_reasons(run, read: np.ndarray, fam: Family, space: Space) -> list[str]:
@@ -98,7 +131,8 @@ def identifiability(run, read, fam: Family, space: Space, info, held, parameters
         out.reasons.append("the interval of " + ", ".join(wide) + " spans all of 0 to 1")
     out.problem = bool(out.reasons)
     if out.problem:
+        out.advice = advice(run, read, fam, space)
         out.warnings.append("the data cannot separate sensitivity from prevalence and specificity "
                             "(Hui & Walter 1980): " + "; ".join(out.reasons)
-                            + "; estimates along that direction are arbitrary: " + ADVICE)
+                            + "; estimates along that direction are arbitrary: " + out.advice)
     return out

@@ -193,6 +193,8 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
                          {k: v for k, v in run.sources.items() if k in ("layout", "readouts",
                                                                        "samples") and v},
                          identifiable=not ident.problem, extra=extra, curve_model=curve)
+    if ident.problem:
+        result.unidentified = ident.refusal()
     names = [("logit " if p.scale == "logit" else "log ") + p.name for p in space.free_params]
     result.covariance = pd.DataFrame(covariance(info, held), index=names, columns=names)
     result.assay = Assay(assay.specificity, assay.sensitivity, fit_details(result))

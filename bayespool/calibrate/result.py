@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..assay import Assay
+from ..errors import InputError
 
 LABELS = {"validation": "validation runs with known truth",
           "runs": "past runs with latent truth"}
@@ -65,6 +66,13 @@ class Calibration:
     covariance: pd.DataFrame | None = None  # of the free parameters on the unconstrained scale
     extra: dict = field(default_factory=dict)
     curve_model: object = None  # draws sensitivity curves with their uncertainty (plot, report)
+    unidentified: str = ""  # why the fit is not identified and what to do ("" when it is)
+
+    def check_identified(self) -> None:
+        """Raise :class:`InputError` with the reason and the remedy when the data do not identify
+        the fit (Hui & Walter 1980): such a fit must not silently become the assay."""
+        if self.identifiable is False:
+            raise InputError(self.unidentified or "the data do not identify the fit")
 
     @property
     def aic(self) -> float:

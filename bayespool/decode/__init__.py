@@ -229,6 +229,15 @@ def decode(run: Run, assay, method: str = "auto",
     it is a terminal and the run is large). ``gibbs_options`` go to the Gibbs sampler (chains,
     max_sweeps, prevalence_prior, ...; see :meth:`bayespool.decode.gibbs.GibbsSampler.sample`).
     """
+    from ..ct_evidence import ct_notes
+    post = _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
+                   tolerance, max_sweeps, progress, gibbs_options)
+    post.warnings.extend(ct_notes(run, assay))
+    return post
+
+
+def _decode(run, assay, method, negative_below, positive_above, seed, exact_limit, damping,
+            tolerance, max_sweeps, progress, gibbs_options) -> Posterior:
     if method not in METHODS or (method not in ("auto", "gibbs") and method not in PART_DECODERS):
         raise InputError(f"unknown method {method!r} (choose one of {', '.join(METHODS)})")
     lo, hi = check_thresholds(negative_below, positive_above)

@@ -4,7 +4,8 @@ Each specimen is in two pools (its row and its column) and two specimens share a
 array is 1-disjunct: without test error a single positive sits at the crossing of the one positive row
 and the one positive column (Phatarfod & Sudbury 1994, The use of a square array scheme in blood
 testing, Statistics in Medicine 13; Kim et al. 2007, Biometrics 63(4)). Specimens fill the grids row
-by row in the order given; more specimens than one grid holds use further grids.
+by row in the order given; more specimens than one grid holds use further grids. Specimens on plates
+use the plates' rows and columns (:mod:`bayespool.design.plate_layout`).
 """
 from __future__ import annotations
 
@@ -63,10 +64,18 @@ def array_pools(n: int, rows: int, cols: int):
 
 def array_design(samples, rows: int | None = None, cols: int | None = None,
                  max_pool_size: int | None = None) -> Design:
-    """Row and column pools of r x c grids (default: see :func:`default_grid`)."""
+    """Row and column pools of r x c grids (default: see :func:`default_grid`).
+
+    Specimens with plates and wells (a samples file with ``well``) use their plates' own rows and
+    columns instead (:func:`bayespool.design.plate_layout.plate_array_design`).
+    """
     spec = specimens(samples)
     n = len(spec)
     limit = check_max_pool_size(max_pool_size)
+    pos = spec.positions()
+    if pos is not None:
+        from .plate_layout import plate_array_design
+        return plate_array_design(spec, pos, rows, cols, limit)
     if rows is None and cols is None:
         rows, cols = default_grid(n, limit)
     elif rows is None or cols is None:

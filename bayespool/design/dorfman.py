@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..errors import InputError
 from .base import Design, build_design, check_count, check_max_pool_size, pool_labels
 from .specimens import specimens
 
@@ -19,11 +20,22 @@ def dorfman_blocks(n: int, k: int):
     return ptr, np.arange(n, dtype=np.int32)
 
 
-def dorfman_design(samples, pool_size: int, max_pool_size: int | None = None) -> Design:
-    """Pools of ``pool_size`` consecutive specimens in the given order."""
+def dorfman_design(samples, pool_size: int, max_pool_size: int | None = None,
+                   fill: str | None = None) -> Design:
+    """Pools of ``pool_size`` consecutive specimens in the given order.
+
+    Specimens with plates and wells are pooled in pipetting order instead, ``fill`` ``columns``
+    (default) or ``rows`` (:func:`bayespool.design.plate_layout.plate_dorfman_design`).
+    """
     spec = specimens(samples)
     k = check_count(pool_size, "--pool-size")
     limit = check_max_pool_size(max_pool_size)
+    pos = spec.positions()
+    if pos is not None:
+        from .plate_layout import plate_dorfman_design
+        return plate_dorfman_design(spec, pos, k, fill or "columns", limit)
+    if fill is not None:
+        raise InputError("--fill needs a samples file with plate and well columns")
     n = len(spec)
     ptr, members = dorfman_blocks(n, k)
     notes = []

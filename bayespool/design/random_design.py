@@ -8,6 +8,11 @@ column weight are the standard non-adaptive benchmark in group testing (Aldridge
 2019, Group Testing: An Information-Theoretic Perspective, Foundations and Trends in Communications
 and Information Theory 15(3-4)). Their disjunctness is measured, not promised: the largest overlap
 ``lam`` of two specimens gives ``floor((w - 1) / lam)``.
+
+Two specimens in the identical set of pools could never be told apart by any readouts, so the
+dealt memberships are repaired by swaps between specimens (which keep every pool's size) until each
+specimen has a set of its own; when there are fewer distinct sets than specimens (C(T, w) < n) the
+design is refused.
 """
 from __future__ import annotations
 
@@ -18,6 +23,9 @@ import numpy as np
 from ..errors import InputError
 from .base import Design, build_design, check_count, check_max_pool_size, pool_labels
 from .specimens import specimens
+
+
+REDEALS = 5  # fresh deals tried before a nearly saturated design is refused
 
 
 def deal_memberships(n: int, w: int, pools: int, rng: np.random.Generator) -> np.ndarray:
@@ -41,6 +49,47 @@ def deal_memberships(n: int, w: int, pools: int, rng: np.random.Generator) -> np
     return stream.reshape(n, w)
 
 
+def separate_identical(table: np.ndarray, rng: np.random.Generator, attempts: int = 200) -> bool:
+    """Swap pools between specimens until no two rows of ``table`` (n, w) hold the same set.
+
+    A swap exchanges pool ``a`` of specimen i for pool ``b`` of specimen j, so pool sizes stay as
+    dealt; it is taken only when both new sets are distinct pools and no other specimen's set.
+    ``attempts`` random swaps are tried per crowded specimen, then every swap in turn. Returns
+    False if some specimen has no such swap.
+    """
+    n, w = table.shape
+    sets = [frozenset(row) for row in table.tolist()]
+    count: dict = {}
+    for key in sets:
+        count[key] = count.get(key, 0) + 1
+
+    def swap(i: int, j: int, a: int, b: int) -> bool:
+        pa, pb = int(table[i, a]), int(table[j, b])
+        if j == i or pa == pb or pb in sets[i] or pa in sets[j]:
+            return False
+        new_i, new_j = (sets[i] - {pa}) | {pb}, (sets[j] - {pb}) | {pa}
+        if count.get(new_i, 0) or count.get(new_j, 0):
+            return False
+        for old in (sets[i], sets[j]):
+            count[old] -= 1
+        table[i, a], table[j, b] = pb, pa
+        sets[i], sets[j] = new_i, new_j
+        count[new_i] = count.get(new_i, 0) + 1
+        count[new_j] = count.get(new_j, 0) + 1
+        return True
+
+    for i in [i for i in range(n) if count[sets[i]] > 1]:
+        if count[sets[i]] == 1:  # its twin moved away already
+            continue
+        if any(swap(i, int(rng.integers(n)), int(rng.integers(w)), int(rng.integers(w)))
+               for _ in range(attempts)):
+            continue
+        if not any(swap(i, j, a, b) for j in rng.permutation(n).tolist()
+                   for a in range(w) for b in range(w)):
+            return False
+    return True
+
+
 def random_design(samples, pools_per_sample: int = 2, pools: int | None = None,
                   max_pool_size: int | None = None, seed=None) -> Design:
     """Every specimen in ``pools_per_sample`` distinct pools out of ``pools``.
@@ -61,8 +110,20 @@ def random_design(samples, pools_per_sample: int = 2, pools: int | None = None,
     if limit is not None and math.ceil(n * w / t) > limit:
         raise InputError(f"{n} specimens in {w} pools each need at least "
                          f"{math.ceil(n * w / limit)} pools of at most {limit} (got --pools {t})")
+    if math.comb(t, w) < n:
+        raise InputError(f"{n} specimens cannot each have a set of pools of their own: {t} pools "
+                         f"give only {math.comb(t, w)} distinct sets of {w}, and two specimens in "
+                         "the same pools can never be told apart; raise --pools or "
+                         "--pools-per-sample")
     rng = np.random.default_rng(seed)
-    table = deal_memberships(n, w, t, rng)
+    for _ in range(REDEALS):
+        table = deal_memberships(n, w, t, rng)
+        if separate_identical(table, rng):
+            break
+    else:
+        raise InputError(f"found no layout that gives each of the {n} specimens its own set of "
+                         f"{w} pools out of {t} (nearly every set is needed); raise --pools or "
+                         "--pools-per-sample")
     owner = table.ravel()
     member = np.repeat(np.arange(n, dtype=np.int32), w)
     order = np.argsort(owner, kind="stable")

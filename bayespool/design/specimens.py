@@ -14,6 +14,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..io import read_table
+from ..wells import check_wells
 
 
 @dataclass
@@ -23,9 +24,22 @@ class Specimens:
     ids: np.ndarray
     prior: np.ndarray | None = None
     source: str | None = None
+    table: pd.DataFrame | None = None  # the samples file's columns (plate, well, volume_ul, ...)
 
     def __len__(self) -> int:
         return len(self.ids)
+
+    def positions(self):
+        """Plates and wells (:class:`bayespool.plates.Positions`), None without a well column."""
+        from ..plates import plate_positions
+        return plate_positions(self.table, self.ids, self.source or "samples")
+
+    def subset(self, keep: np.ndarray) -> "Specimens":
+        """The specimens where ``keep`` is True, in the same order."""
+        keep = np.asarray(keep, dtype=bool)
+        return Specimens(self.ids[keep], None if self.prior is None else self.prior[keep],
+                         self.source, None if self.table is None else
+                         self.table[keep].reset_index(drop=True))
 
     def priors(self, prevalence: float) -> np.ndarray:
         """Per-specimen prior: the file's value, else ``prevalence``."""
@@ -43,6 +57,7 @@ def numbered(n: int) -> np.ndarray:
 def read_samples(path) -> Specimens:
     """The samples file: ``sample`` (unique, non-empty) and optional ``prior`` in (0, 1)."""
     table = read_table(path, ["sample"], "samples")
+    check_wells(table)
     f = table.frame
     if len(f) == 0:
         raise InputError("samples file lists no specimen", str(path))
@@ -62,7 +77,8 @@ def read_samples(path) -> Specimens:
             raise table.error(f"prior {f['prior'].iat[r].strip()!r} must be a probability "
                               "strictly between 0 and 1", r, "prior")
         prior = vals
-    return Specimens(f["sample"].to_numpy(dtype=object), prior, str(path))
+    return Specimens(f["sample"].to_numpy(dtype=object), prior, str(path),
+                     f.reset_index(drop=True))
 
 
 def specimens(arg) -> Specimens:
@@ -73,6 +89,16 @@ def specimens(arg) -> Specimens:
         if arg < 1:
             raise InputError(f"--samples must be at least 1, got {arg}")
         return Specimens(numbered(int(arg)))
+    if isinstance(arg, pd.DataFrame):
+        if "sample" not in arg.columns:
+            raise InputError("the samples table needs a 'sample' column")
+        table = arg.astype(str).reset_index(drop=True)
+        ids = table["sample"].str.strip().to_numpy(dtype=object)
+        if len(set(ids.tolist())) != len(ids) or (ids == "").any():
+            raise InputError("sample IDs must be unique and non-empty")
+        prior = (pd.to_numeric(arg["prior"], errors="coerce").to_numpy(dtype=float)
+                 if "prior" in arg.columns else None)
+        return Specimens(ids, prior, None, table)
     if isinstance(arg, (list, tuple, np.ndarray, pd.Index)):
         ids = np.asarray([str(a) for a in arg], dtype=object)
         if len(ids) == 0:

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 
 from ..wells import FORMATS, parse_well, plate_format
 from . import formatting as fmt
+from ..plates import FORMATS, parse_well, plate_format  # noqa: F401 (re-exported)
 from .escape import text
 from .markup import el
 from .palette import styles

@@ -31,12 +31,13 @@ def dilution_range(assay, pool_sizes=None, observed=None) -> float:
     return top
 
 
-def sensitivity_curve(assay, pool_sizes=None, observed=None) -> str:
+def sensitivity_curve(assay, pool_sizes=None, observed=None, png_to=None) -> str:
     """Se against the dilution factor k/d for the assay's family, with 1 - Sp for reference.
 
     ``pool_sizes``: the run's pool sizes, marked where a lone positive (d = 1) sits. ``observed``: a
     frame with ``dilution``, ``rate``, ``low``, ``high`` (a calibration's observed detection with
-    Clopper-Pearson intervals), drawn as points with bars.
+    Clopper-Pearson intervals), drawn as points with bars. ``png_to``: a binary file to write a
+    PNG picture to instead of returning SVG.
     """
     s = assay.sensitivity
     top = dilution_range(assay, pool_sizes, observed)
@@ -53,6 +54,11 @@ def sensitivity_curve(assay, pool_sizes=None, observed=None) -> str:
                 ax.plot([e[0] / e[1] for e in entries], [e[2] for e in entries], "o",
                         color=colour, ms=5, label=f"table, pool size {k}" if len(sizes) <= 8
                         else None)
+        elif s.model == "ct":  # the load model's Se(k, d) depends on k and d, not on k/d alone
+            r = np.geomspace(1.0, top, 200)
+            for j, d in enumerate((1, 2, 4)):
+                ax.plot(r, s(r * d, np.full(len(r), d)), "-", color=_hex(0.95 - 0.25 * j),
+                        lw=2 if d == 1 else 1.2, label=f"Se implied by the Ct model, d = {d}")
         else:
             r = np.geomspace(1.0, top, 300)
             se = s(r, np.ones_like(r))  # Se(k, d) depends on k/d only in these families
@@ -92,6 +98,9 @@ def sensitivity_curve(assay, pool_sizes=None, observed=None) -> str:
         ax.set_xlabel("dilution factor k/d (pool size / positive members)")
         ax.set_ylabel("P(pool reads positive)")
         ax.legend(loc="lower left", fontsize=8, frameon=False)
+        if png_to is not None:  # a standalone picture instead of the report's inline SVG
+            fig.savefig(png_to, format="png", dpi=150)
+            return ""
         return to_svg(fig, "assay-curve", "Sensitivity of the assay against the dilution factor")
 
 
@@ -127,3 +136,14 @@ def count_chart(dist: np.ndarray, expected: float) -> str:
             ax.set_xticks(c)
         ax.legend(loc="upper right", fontsize=8, frameon=False)
         return to_svg(fig, "count-chart", "Posterior distribution of the number of positive specimens")
+
+
+
+def write_sensitivity_plot(assay, path, pool_sizes=None) -> None:
+    """The sensitivity curve of :func:`sensitivity_curve` as a standalone SVG or PNG file."""
+    from ..io import atomic_output
+    png = str(path).lower().endswith(".png")
+    with atomic_output(path, "wb" if png else "w") as fh:
+        out = sensitivity_curve(assay, pool_sizes, png_to=fh if png else None)
+        if not png:
+            fh.write(out)
