@@ -62,7 +62,7 @@ def _result_words(args, assay=None) -> dict:
     return words
 
 
-INPUT_OPTIONS = ("layout", "readouts", "samples", "assay", "validation")
+INPUT_OPTIONS = ("layout", "readouts", "samples", "assay", "validation", "controls")
 
 
 def _check_outputs(args, more: dict | None = None, **outputs) -> None:
@@ -83,7 +83,10 @@ def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) 
     p.add_argument("--layout", required=True, metavar="CSV", help="pool,sample memberships")
     p.add_argument("--readouts", required=readouts_required, metavar="CSV",
                    help="pool,result[,ct] readouts; several rows of one pool are replicates")
-    p.add_argument("--samples", metavar="CSV", help="sample[,prior,plate,well]")
+    p.add_argument("--samples", metavar="CSV", help="sample[,prior,plate,well,control]")
+    p.add_argument("--controls", metavar="CSV",
+                   help="control wells: plate,well,kind[,id,ct_min,ct_max] with kind positive, "
+                   "negative or extraction; a failed control leaves its plate's readouts out")
     p.add_argument("--assay", metavar="TOML",
                    help="assay model (default: constant Se 0.95, Sp 0.99, with a note)")
     p.add_argument("--prevalence", type=_probability, default=PREVALENCE, metavar="P",
@@ -106,14 +109,17 @@ def _load_inputs(args):
     cleanly, so bad input gets exactly one line on stderr."""
     from .assay import DEFAULT_ASSAY, Assay
     from .run import Run
+    from .controls import read_run
     assay = Assay.read(args.assay) if args.assay else DEFAULT_ASSAY
     if getattr(args, "assay_uncertainty", False):
         from .assay_spread import integrate
         if not args.assay:
             raise InputError("--assay-uncertainty needs --assay: a file written by calibrate")
         assay = integrate(assay, args.assay)
-    run = Run.read(args.layout, args.readouts, args.samples, prevalence=args.prevalence,
-                   result_words=_result_words(args, assay))
+    run, args.control_check = read_run(args.layout, args.readouts, args.samples,
+                                       getattr(args, "controls", None),
+                                       prevalence=args.prevalence,
+                                       result_words=_result_words(args, assay))
     run.sources["assay"] = args.assay
     if not args.assay:
         _note(args, f"no --assay given: assuming {assay.describe()}")
@@ -293,23 +299,31 @@ def _run_decode(args):
                   positive_above=args.positive_above, seed=args.seed, damping=args.damping,
                   tolerance=args.tolerance, max_sweeps=args.max_sweeps,
                   gibbs_options=_gibbs_options(args))
+    check = args.control_check
+    if check is not None:
+        from .controls import mark_specimens
+        mark_specimens(post, run, check)
     write_frame(post.to_frame(), args.out)
     if args.report:
         from .report import write_report
-        write_report(args.report, run=run, assay=assay, posterior=post)
-    for w in post.warnings:
+        write_report(args.report, run=run, assay=assay, posterior=post, controls=check)
+    for w in post.warnings + (check.messages if check is not None else []):
         _note(args, w)
     if args.json:
         summary = post.summary()
         summary.update({"pools": run.n_pools, "readouts": run.n_readouts, "out": args.out,
                         "assay": assay.describe(), "assay_uncertainty": args.assay_uncertainty})
-        print(json.dumps(summary, indent=2))
+        if check is not None:
+            summary["controls"] = check.summary()
+        print(json.dumps(_json_ready(summary), indent=2))
     else:
         c = post.counts()
         print(f"{run.n_samples} samples, {run.n_pools} pools, {run.n_readouts} readouts, "
               f"decoded by {post.method}: {c['positive']} positive, {c['negative']} negative, "
               f"{c['inconclusive']} inconclusive")
         _print_gibbs(post)
+        if check is not None:
+            print("\n".join(check.lines()))
         print(f"wrote {args.out}" + (f" and {args.report}" if args.report else ""))
     return 0
 
@@ -481,7 +495,7 @@ def _run_design(args):
         summary["out"] = args.out
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
-        print(json.dumps(summary, indent=2))
+        print(json.dumps(_json_ready(summary), indent=2))
     else:
         print("\n".join(design.properties.lines()))
         if wl is not None:
@@ -860,8 +874,10 @@ def _run_plan(args):
     write_frame(frame, args.out)
     if report:
         from .report import write_report
-        write_report(report, run=run, assay=assay, posterior=post, plan=frame)
-    for w in post.warnings + result.notes:
+        write_report(report, run=run, assay=assay, posterior=post, plan=frame,
+                     controls=args.control_check, worklist=wl)
+    check = args.control_check
+    for w in post.warnings + result.notes + (check.messages if check is not None else []):
         _note(args, w)
     if args.json:
         summary = result.summary()
@@ -869,7 +885,9 @@ def _run_plan(args):
                         "assay_uncertainty": args.assay_uncertainty})
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
-        print(json.dumps(summary, indent=2))
+        if check is not None:
+            summary["controls"] = check.summary()
+        print(json.dumps(_json_ready(summary), indent=2))
     elif result.decided:
         print(f"every sample is decided ({run.n_samples} samples): no test to plan; wrote a "
               f"header only to {args.out}")

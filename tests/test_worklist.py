@@ -7,11 +7,12 @@ and from the plate formats (96 = 8 x 12, 384 = 16 x 24 wells, ANSI/SLAS 1-2004, 
 from __future__ import annotations
 
 import json
+import math
 
 import numpy as np
 import pandas as pd
 import pytest
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from bayespool.design import dorfman_design, random_design
@@ -74,8 +75,10 @@ def test_dorfman_worklist_properties(n, k, plate_size, volume):
 @given(n=st.integers(2, 200), w=st.integers(1, 3), pools=st.integers(3, 150),
        plate_size=st.sampled_from([96, 384]), seed=st.integers(0, 1000))
 def test_random_design_worklist_properties(n, w, pools, plate_size, seed):
+    w = min(w, pools)
+    assume(math.comb(pools, w) >= n)  # a set of pools of its own for every specimen
     samples = _samples(n, 96)
-    layout = random_design(list(samples["sample"]), pools_per_sample=min(w, pools), pools=pools,
+    layout = random_design(list(samples["sample"]), pools_per_sample=w, pools=pools,
                            seed=seed).layout
     wl = build_worklist(layout, samples, pool_volume=200, plate_size=plate_size,
                         reserve=["A1", "H12"])

@@ -8,17 +8,23 @@ Four kinds, each a plain way a laboratory follows up pooled results:
 - ``split``: the undecided members of a pool that read positive, whole and in halves (binary
   splitting, Hwang 1972, JASA 67);
 - ``replicate``: one more reading of an existing pool that has undecided members (the same mix, so
-  it draws no more specimen material).
+  it draws no more specimen material);
+- ``code``: the undecided members of a positive pool (4 to 64 of them) laid out as codewords of a
+  single-error-correcting code (:func:`bayespool.design.code.code_design`): about log2 k + 3 pools
+  that name a lone positive in one round despite a wrong readout. Each of its pools is a candidate
+  scored by information like any other, so the batch takes as many of them as are worth it.
 Identical member sets are kept once (the cheapest kind first). Pools are CSR arrays (ptr, members).
 """
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
-KINDS = ("retest", "pool", "split", "replicate")
-RETEST, POOL, SPLIT, REPLICATE = range(4)
+KINDS = ("retest", "pool", "split", "replicate", "code")
+RETEST, POOL, SPLIT, REPLICATE, CODE = range(5)
+CODE_SIZES = (4, 64)   # positive pools whose undecided members get a code follow-up
 LADDER = (2, 3, 4, 5, 6, 8, 10, 12, 14, 16, 20, 24, 28, 32, 40, 48, 64, 96, 128)
 
 
@@ -44,6 +50,14 @@ class Candidates:
     def uses_material(self) -> np.ndarray:
         """True where reading the candidate draws specimen material (all but replicates)."""
         return self.kind != REPLICATE
+
+
+@lru_cache(maxsize=None)
+def code_pools(k: int) -> tuple:
+    """Member positions (0..k-1) of each pool of the code design for ``k`` specimens."""
+    from ..design.code import code_design
+    d = code_design(k)
+    return tuple(np.sort(d.members(t).astype(np.int64)) for t in range(d.n_pools))
 
 
 def pool_sizes(max_pool_size: int, allowed) -> list[int]:
@@ -90,6 +104,14 @@ def generate(run, probability: np.ndarray, undecided: np.ndarray, comps, max_poo
             for part in (left[:half], left[half:]):
                 if 2 <= len(part) <= max_pool_size:
                     items.append((SPLIT, int(t), part))
+    # code follow-ups of positive pools
+    for t in np.flatnonzero(run.n_positive > 0):
+        mem = run.members(t).astype(np.int64)
+        left = mem[und[mem]]
+        if CODE_SIZES[0] <= len(left) <= CODE_SIZES[1]:
+            for pool in code_pools(len(left)):
+                if len(pool) <= max_pool_size and len(pool) < len(allowed) and allowed[len(pool)]:
+                    items.append((CODE, int(t), left[pool]))
     # probability-grouped pools: the whole run, then each linked group
     order = undecided[np.argsort(probability[undecided], kind="stable")].astype(np.int64)
     _chunks(order, sizes, items, POOL)

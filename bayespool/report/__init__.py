@@ -24,9 +24,12 @@ DEFAULT_TITLE = "bayespool run report"
 
 
 def build_report(run=None, assay=None, posterior=None, plan=None, calibration=None, title=None, *,
-                 created=None, notes=(), file_name=None) -> str:
+                 created=None, notes=(), file_name=None, controls=None, worklist=None) -> str:
     """The report as an HTML string. ``created`` (datetime or text) defaults to now, in UTC;
-    ``notes`` are extra lines for the run summary (e.g. that the data is invented)."""
+    ``notes`` are extra lines for the run summary (e.g. that the data is invented); ``controls``
+    (a :class:`bayespool.controls.ControlCheck`) adds the control status per plate, ``worklist``
+    (a :class:`bayespool.worklist.Worklist`) the destination plate map."""
+    from .bench import controls_section, destinations_section
     from .calibration import calibration_section, observed_points
     from .calls import calls_section, map_section
     from .groups import groups_section
@@ -35,7 +38,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     from .positives import positives_section
     from .summary import assay_section, decoder_section, run_section
 
-    if all(x is None for x in (run, assay, posterior, plan, calibration)):
+    if all(x is None for x in (run, assay, posterior, plan, calibration, worklist)):
         raise ValueError("nothing to report: give at least one of run, assay, posterior, plan, "
                          "calibration")
     if run is not None and posterior is not None and posterior.n_samples != run.n_samples:
@@ -52,6 +55,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         if calibration is not None else (None, None)
     if run is not None:
         add("summary", "Run", run_section(run, notes))
+    add("controls", "Controls", controls_section(controls))
     if posterior is not None:
         add("decoder", "Decoder", decoder_section(posterior, run))
         mapped = map_section(posterior, run)
@@ -62,6 +66,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         add("positives", "Positives", positives_section(posterior))
     if plan is not None:
         add("plan", "Next pools", plan_section(plan, posterior))
+    add("destinations", "Destination plates", destinations_section(worklist))
     if assay is not None:
         add("assay", "Assay", assay_section(assay, run, points))
     if calibration is not None:

@@ -18,6 +18,7 @@ PROTOCOLS = {
     "dorfman": "bayespool.simulate.protocols.dorfman:DorfmanTesting",
     "array": "bayespool.simulate.protocols.array:ArrayTesting",
     "bayes": "bayespool.simulate.protocols.bayes:BayesianLoop",
+    "pool-then-code": "bayespool.simulate.protocols.pool_then_code:PoolThenCode",
 }
 
 
