@@ -62,20 +62,34 @@ def _result_words(args, assay=None) -> dict:
     return words
 
 
-INPUT_OPTIONS = ("layout", "readouts", "samples", "assay", "validation", "controls")
+INPUT_OPTIONS = {"layout": "--layout", "readouts": "--readouts", "samples": "--samples",
+                 "assay": "--assay", "validation": "--validation", "assay_file": "ASSAY.toml",
+                 "pools": "--pools", "controls": "--controls"}
+
+
+def _inputs(args) -> dict:
+    """The command's input files as given: option -> path (a number for --samples is no file)."""
+    out = {}
+    for name, label in INPUT_OPTIONS.items():
+        value = getattr(args, name, None)
+        if isinstance(value, str) and not value.strip().isdigit():
+            out[label] = value
+    return out
+
+
+def _audit(args):
+    """The audit trail of this command (argv, version, seed, date, inputs' size and SHA-256)."""
+    from .audit import make_audit
+    return make_audit(_inputs(args), argv=getattr(args, "argv", None),
+                      seed=getattr(args, "seed", None))
 
 
 def _check_outputs(args, more: dict | None = None, **outputs) -> None:
     """Before any work: every output (option -> path, plus ``more``: description -> path) lies in
     an existing folder and is neither an input of the command nor another output."""
     from .io import check_outputs
-    inputs = {}
-    for name in INPUT_OPTIONS:
-        value = getattr(args, name, None)
-        if isinstance(value, str) and not value.strip().isdigit():
-            inputs[f"--{name}"] = value
     named = {f"--{k.replace('_', '-')}": v for k, v in outputs.items()}
-    check_outputs({**named, **(more or {})}, inputs)
+    check_outputs({**named, **(more or {})}, _inputs(args))
 
 
 def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) -> None:
@@ -192,12 +206,9 @@ def _run_assay(args):
     from .assay import Assay, sensitivity_table
     plot = args.plot
     if plot:
-        from .io import check_output_path
-        check_output_path(plot)
+        _check_outputs(args, plot=plot)
         if not plot.lower().endswith((".svg", ".png")):
             raise InputError(f"--plot {plot!r}: the file name must end in .svg or .png")
-        if os.path.abspath(plot) == os.path.abspath(args.assay_file):
-            raise InputError("--plot must not overwrite the assay file")
     assay = Assay.read(args.assay_file)
     table = sensitivity_table(assay, args.pool_sizes)
     if plot:
@@ -295,6 +306,7 @@ def _run_decode(args):
     from .io import write_frame
     _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
+    audit = _audit(args) if args.report or args.json else None
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
                   positive_above=args.positive_above, seed=args.seed, damping=args.damping,
                   tolerance=args.tolerance, max_sweeps=args.max_sweeps,
@@ -306,11 +318,13 @@ def _run_decode(args):
     write_frame(post.to_frame(), args.out)
     if args.report:
         from .report import write_report
-        write_report(args.report, run=run, assay=assay, posterior=post, controls=check)
+        write_report(args.report, run=run, assay=assay, posterior=post, controls=check,
+                     audit=audit)
     for w in post.warnings + (check.messages if check is not None else []):
         _note(args, w)
     if args.json:
         summary = post.summary()
+        summary["audit"] = audit.to_dict()
         summary.update({"pools": run.n_pools, "readouts": run.n_readouts, "out": args.out,
                         "assay": assay.describe(), "assay_uncertainty": args.assay_uncertainty})
         if check is not None:
@@ -493,6 +507,7 @@ def _run_design(args):
     if args.json:
         summary.update(design.properties.to_dict())
         summary["out"] = args.out
+        summary["audit"] = _audit(args).to_dict()
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
         print(json.dumps(_json_ready(summary), indent=2))
@@ -603,7 +618,8 @@ def _run_simulate(args):
             from .simulate.simulator import Sweep
             write_frame(Sweep([sim]).table, args.out)
         if args.json:
-            print(json.dumps(_json_ready(sim.to_dict()), indent=2))
+            print(json.dumps(_json_ready({**sim.to_dict(), "audit": _audit(args).to_dict()}),
+                             indent=2))
         else:
             _print_simulation(sim, sim.characteristics.table())
     else:
@@ -614,7 +630,8 @@ def _run_simulate(args):
         if args.out:
             write_frame(table, args.out)
         if args.json:
-            print(json.dumps(_json_ready({"points": result.to_dict()}), indent=2))
+            print(json.dumps(_json_ready({"points": result.to_dict(),
+                                          "audit": _audit(args).to_dict()}), indent=2))
         else:
             _print_sweep(result, table)
     if args.out and not args.json:
@@ -654,8 +671,16 @@ LABELS = {"tests_per_sample": "tests per specimen", "sensitivity": "sensitivity"
           "draws_per_sample": "draws per specimen"}
 
 
+def _param_text(value) -> str:
+    """A protocol parameter for people: ``none`` rather than Python's None."""
+    if value is None:
+        return "none"
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
 def _print_simulation(sim, table) -> None:
-    params = ", ".join(f"{k} {v}" for k, v in sim.parameters.items())
+    params = ", ".join(f"{k.replace('_', ' ')} {_param_text(v)}"
+                       for k, v in sim.parameters.items())
     c = sim.characteristics
     prev = f"prevalence {sim.prevalence:g}" if sim.prevalence is not None else "per-specimen priors"
     print(f"{sim.scheme}" + (f" ({params})" if params else "") + f", {c.specimens} specimens, "
@@ -783,6 +808,7 @@ def _run_calibrate(args):
                                 intervals=args.intervals)
         if not args.allow_unidentified:
             result.check_identified()
+    audit = _audit(args) if args.report or args.json else None
     fig = figure(result) if plots else None
     result.assay.write(args.out)
     if plots:
@@ -791,13 +817,14 @@ def _run_calibrate(args):
     if args.report:
         from .report import write_report
         write_report(args.report, run=run if not args.validation else None, assay=result.assay,
-                     calibration=result, title="bayespool calibration report")
+                     calibration=result, title="bayespool calibration report", audit=audit)
         written.append(args.report)
     if args.json:
         for w in result.warnings:
             _note(args, w)
         summary = result.summary()
         summary["out"] = args.out
+        summary["audit"] = audit.to_dict()
         summary["plots"] = {k: str(v) for k, v in plots.items()}
         if args.report:
             summary["report"] = args.report
@@ -856,6 +883,7 @@ def _run_plan(args):
     if args.worklist and not args.samples:
         raise InputError("--worklist needs --samples with the specimens' plate and well")
     run, assay = _load_inputs(args)
+    audit = _audit(args) if report or args.json else None
     if run.n_samples == 0:
         raise InputError("no samples: the layout is empty and no --samples file lists any",
                          args.layout)
@@ -875,14 +903,15 @@ def _run_plan(args):
     if report:
         from .report import write_report
         write_report(report, run=run, assay=assay, posterior=post, plan=frame,
-                     controls=args.control_check, worklist=wl)
+                     controls=args.control_check, worklist=wl, audit=audit)
     check = args.control_check
     for w in post.warnings + result.notes + (check.messages if check is not None else []):
         _note(args, w)
     if args.json:
         summary = result.summary()
         summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe(),
-                        "assay_uncertainty": args.assay_uncertainty})
+                        "assay_uncertainty": args.assay_uncertainty,
+                        "audit": audit.to_dict()})
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
         if check is not None:
@@ -929,6 +958,7 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    args.argv = list(sys.argv[1:] if argv is None else argv)
     if args.command is None:
         parser.print_help()
         return 2

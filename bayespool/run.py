@@ -288,6 +288,17 @@ class Run(PoolIncidence):
                    self.sample_ptr, self.sample_pools, npos, nneg, self.samples, self.readout_ct,
                    dict(self.sources), list(self.notes))
 
+    def sample_column(self, name: str) -> np.ndarray | None:
+        """A column of the samples file aligned with ``sample_ids`` (blank for specimens it does
+        not list), or None when the file or the column is absent."""
+        if self.samples is None or name not in self.samples.columns:
+            return None
+        out = np.full(self.n_samples, "", dtype=object)
+        idx = self.samples.index.to_numpy()
+        ok = (idx >= 0) & (idx < self.n_samples)
+        out[idx[ok]] = self.samples[name].astype(str).str.strip().to_numpy()[ok]
+        return out
+
     def layout_frame(self) -> pd.DataFrame:
         """The layout as a DataFrame (pool, sample), one row per membership."""
         owner = np.repeat(np.arange(self.n_pools), self.pool_size)

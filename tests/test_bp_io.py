@@ -136,6 +136,14 @@ LAYOUTS = [
     "pool,sample\n,S1\nP1,S2\n",                             # empty pool ID
     "pool,sample\nP1,S1\nP1,\n",                             # empty sample ID
     "pool,sample\nP1,S1\nP2,S2\nP1,S1\n",                    # repeated pair
+    # other separators and header spellings (tests/test_files.py)
+    "pool;sample\nP1;S1\nP1;S2\nP2;S1\n",
+    "pool\tsample\nP1\tS1\nP1\tS2\nP2\tS1\n",
+    "Pool,Sample\nP1,S1\nP2,S2\n",
+    "POOL;plate;SAMPLE\nP1;x;S1\nP1;y;S2\n",
+    "pool;sample\nP1;S1\nP1;S2;x\n",                         # a field too many
+    "pool\tpool\tsample\nP1\tP1\tS1\n",                       # repeated header name
+    "pool\tsample\nP1\t S1\nP1\tS2\n",                        # a space inside a tab file
 ]
 
 

@@ -14,7 +14,6 @@ from bayespool.errors import InputError
 from bayespool.run import Run
 
 from .conftest import write_csv
-from .test_bp_io import read_both
 from .test_cli_bad_input import assert_bad
 
 LAYOUT = [("P1", "a"), ("P1", "b"), ("P2", "b"), ("P2", "c"), ("P3", "c"), ("P3", "d")]
@@ -111,25 +110,6 @@ def test_duplicate_headers_are_refused_naming_them(cli, tmp_path, name, header, 
     write(files[name], header, [r + (r[-1],) for r in rows])
     assert_bad(decode_cli(cli, files, tmp_path / "post.csv"), f"{name}.csv", "line 1", needle)
     assert not (tmp_path / "post.csv").exists()
-
-
-@pytest.mark.parametrize("body", [
-    "pool;sample\nP1;S1\nP1;S2\nP2;S1\n",
-    "pool\tsample\nP1\tS1\nP1\tS2\nP2\tS1\n",
-    "Pool,Sample\nP1,S1\nP2,S2\n",
-    "POOL;plate;SAMPLE\nP1;x;S1\nP1;y;S2\n",
-    "pool;sample\nP1;S1\nP1;S2;x\n",            # a field too many
-    "pool\tpool\tsample\nP1\tP1\tS1\n",          # repeated header name
-    "pool\tsample\nP1\t S1\nP1\tS2\n",           # a space inside a tab file
-])
-def test_fast_scan_of_other_separators_equals_the_pandas_path(tmp_path, monkeypatch, body):
-    slow, fast = read_both(tmp_path, monkeypatch, body)
-    if isinstance(slow, tuple):
-        assert fast == slow
-        return
-    assert list(fast.pool_ids) == list(slow.pool_ids)
-    assert list(fast.sample_ids) == list(slow.sample_ids)
-    np.testing.assert_array_equal(fast.pool_members, slow.pool_members)
 
 
 def test_plain_semicolon_and_tab_layouts_take_the_fast_scan(tmp_path, monkeypatch):

@@ -54,6 +54,7 @@ def commands(f):
                     f["samples"]], ["--out"]),
         "design-optimize": (["design", "--scheme", "dorfman", "--optimize", "--prevalence",
                              "0.05", "--assay", f["assay"], "--samples", "6"], ["--out"]),
+        "assay": (["assay", f["assay"]], ["--plot"]),
         "simulate": (["simulate", "--scheme", "dorfman", "--pool-size", "2", "--prevalence",
                       "0.05", "--runs", "5", "--samples", f["samples"], "--assay", f["assay"]],
                      ["--out"]),
@@ -65,7 +66,8 @@ CASES = [(cmd, option) for cmd, option in [
     ("decode", "--assay"), ("plan", "--layout"), ("plan", "--readouts"), ("plan", "--samples"),
     ("plan", "--assay"), ("calibrate-validation", "--validation"),
     ("calibrate-runs", "--layout"), ("calibrate-runs", "--readouts"), ("design", "--samples"),
-    ("design-optimize", "--assay"), ("simulate", "--samples"), ("simulate", "--assay")]]
+    ("design-optimize", "--assay"), ("simulate", "--samples"), ("simulate", "--assay"),
+    ("assay", "ASSAY.toml")]]
 
 
 def snapshot(f):
@@ -75,7 +77,7 @@ def snapshot(f):
 @pytest.mark.parametrize("cmd, option", CASES)
 def test_every_output_of_every_command_refuses_an_input(cli, f, cmd, option):
     args, outputs = commands(f)[cmd]
-    target = args[args.index(option) + 1]
+    target = args[args.index(option) + 1] if option.startswith("--") else args[1]
     before = snapshot(f)
     for out in outputs:
         extra = [o for o in outputs if o != out]

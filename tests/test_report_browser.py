@@ -162,3 +162,22 @@ def test_the_colour_scale_helpers_agree():
     # the screenshot test looks for colour(p); it must be the colour the scale defines
     assert colour(0.3) == "#{:02x}{:02x}{:02x}".format(*(int(round(v)) for v in
                                                         rgb_at(position(0.3))))
+
+
+def test_rendered_text_has_no_python_structures(browser, demo):
+    # the DOM after the script ran, as a reader sees it (script and style left out)
+    from .test_report_record import python_leaks, visible_text
+    dom = parse(browser.dom(demo.url))
+    leaks = python_leaks(visible_text(dom.find("body")))
+    assert not leaks, "\n".join(leaks[:10])
+
+
+def test_a_specimen_link_opens_its_why_entry(browser, demo):
+    post = demo.result.posterior
+    i = int(np.argmax(post.probability))
+    dom = parse(browser.dom(demo.url + f"#why-{i}"))
+    entry = dom.by_id(f"why-{i}")
+    assert "open" in entry.attrs
+    assert entry.find("summary").find("span", class_="id").text() == post.sample_ids[i]
+    others = [d for d in dom.find_all("details", class_="why") if "open" in d.attrs]
+    assert others == [entry]

@@ -108,3 +108,13 @@ def test_simulate_errors(cli, tmp_path):
         assert r.code == 2, args
         errors = [line for line in r.err.splitlines() if "error:" in line]
         assert len(errors) == 1 and "Traceback" not in r.err, r.err
+
+
+def test_protocol_parameters_print_for_people(cli):
+    # the printed summary carries no program notation (None, snake_case keys)
+    r = cli("simulate", "--scheme", "bayes", "--samples", 16, "--prevalence", 0.05, "--runs", 2,
+            "--seed", 1, "--tests", 4)
+    assert r.code == 0, r.err
+    first = r.out.splitlines()[0]
+    assert "relative information 0.5" in first and "material limit none" in first
+    assert "None" not in r.out and "relative_information" not in r.out

@@ -45,12 +45,18 @@ def _check_pools_possible(run: Run, lik_ptr, loglik):
 
 
 def sample_columns(run: Run) -> dict:
-    """Per-specimen counts of read pools and of pools with a positive readout."""
+    """Per-specimen counts of read pools and of pools with a positive readout, and the plate and
+    well of the samples file when it gives them (so the posterior can be found on the bench)."""
     owner_pos = np.repeat((run.n_positive > 0), run.pool_size)
     owner_read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
     n = run.n_samples
-    return {"pools": np.bincount(run.pool_members[owner_read], minlength=n),
-            "positive_pools": np.bincount(run.pool_members[owner_pos], minlength=n)}
+    out = {"pools": np.bincount(run.pool_members[owner_read], minlength=n),
+           "positive_pools": np.bincount(run.pool_members[owner_pos], minlength=n)}
+    for name in ("plate", "well"):
+        values = run.sample_column(name)
+        if values is not None:
+            out[name] = values
+    return out
 
 
 # ---- decoders of a set of components, all with one signature
@@ -264,9 +270,14 @@ def _decode(run, assay, method, negative_below, positive_above, seed, exact_limi
     options = {"exact_limit": exact_limit, "damping": damping, "tolerance": tolerance,
                "max_sweeps": max_sweeps, "progress": progress, "seed": seed,
                "negative_below": lo, "positive_above": hi, "gibbs_options": gibbs_options}
+    decoders = PART_DECODERS
+    if assay.ct is not None:  # shared Cts: joint enumeration where affordable (decode.ct_decode)
+        from .ct_decode import ct_exact_part, ct_options
+        options.update(ct_options(run, assay, comps, method, choice))
+        decoders = {**PART_DECODERS, "exact": ct_exact_part}
     parts = []
     for name in choice.names():
-        part = PART_DECODERS[name](run, lik_ptr, loglik, comps, choice.components(name), options)
+        part = decoders[name](run, lik_ptr, loglik, comps, choice.components(name), options)
         parts.append(part)
         if len(part.unconverged):
             fallback = fallback_decoder(method, part)
@@ -277,7 +288,11 @@ def _decode(run, assay, method, negative_below, positive_above, seed, exact_limi
             choice.method[part.unconverged] = redo.method
             part.warnings.append(_not_converged(part, comps, f"re-decoded by {redo.method}"))
             parts.append(redo)
-    return _assemble(run, comps, choice, parts, lo, hi)
+    post = _assemble(run, comps, choice, parts, lo, hi)
+    if assay.ct is not None:
+        from .ct_decode import finish_ct
+        finish_ct(post, run, assay, options, choice)
+    return post
 
 
 def _check_bp_options(damping, tolerance, max_sweeps):

@@ -24,11 +24,14 @@ DEFAULT_TITLE = "bayespool run report"
 
 
 def build_report(run=None, assay=None, posterior=None, plan=None, calibration=None, title=None, *,
-                 created=None, notes=(), file_name=None, controls=None, worklist=None) -> str:
+                 created=None, notes=(), file_name=None, controls=None, worklist=None,
+                 audit=None) -> str:
     """The report as an HTML string. ``created`` (datetime or text) defaults to now, in UTC;
     ``notes`` are extra lines for the run summary (e.g. that the data is invented); ``controls``
     (a :class:`bayespool.controls.ControlCheck`) adds the control status per plate, ``worklist``
-    (a :class:`bayespool.worklist.Worklist`) the destination plate map."""
+    (a :class:`bayespool.worklist.Worklist`) the destination plate map; ``audit`` (a
+    :class:`bayespool.audit.Audit`) is the audit trail, made from the run's input files when not
+    given."""
     from .bench import controls_section, destinations_section
     from .calibration import calibration_section, observed_points
     from .calls import calls_section, map_section
@@ -36,7 +39,9 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     from .page import page
     from .planned import plan_section
     from .positives import positives_section
+    from .audit import audit_section, review_block
     from .summary import assay_section, decoder_section, run_section
+    from .why import why_section
 
     if all(x is None for x in (run, assay, posterior, plan, calibration, worklist)):
         raise ValueError("nothing to report: give at least one of run, assay, posterior, plan, "
@@ -54,7 +59,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     points, cells = observed_points(getattr(calibration, "cells", None)) \
         if calibration is not None else (None, None)
     if run is not None:
-        add("summary", "Run", run_section(run, notes))
+        add("summary", "Run", run_section(run, notes, fitted_prevalence(calibration)))
     add("controls", "Controls", controls_section(controls))
     if posterior is not None:
         add("decoder", "Decoder", decoder_section(posterior, run))
@@ -63,17 +68,24 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
             "Plate map" if 'id="plate-map"' in mapped else "Ranked chart", mapped)
         add("calls", "Calls", calls_section(posterior, run))
         add("ambiguity", "Ambiguity", groups_section(posterior, run))
+        add("why", "Why", why_section(posterior, run))
         add("positives", "Positives", positives_section(posterior))
     if plan is not None:
         add("plan", "Next pools", plan_section(plan, posterior))
     add("destinations", "Destination plates", destinations_section(worklist))
     if assay is not None:
-        add("assay", "Assay", assay_section(assay, run, points))
+        shown = set(calibration.summary()) if hasattr(calibration, "summary") else set()
+        add("assay", "Assay", assay_section(assay, run, points, shown_elsewhere=shown))
     if calibration is not None:
         add("calibration", "Calibration", calibration_section(calibration, cells))
 
     if created is None:
         created = datetime.now(timezone.utc)
+    if audit is None and run is not None:
+        from ..audit import make_audit
+        audit = make_audit(dict(run.sources or {}), created=created)
+    add("audit", "Audit trail", audit_section(audit))
+    sections.append(review_block())
     when = created.strftime("%Y-%m-%d %H:%M UTC") if isinstance(created, datetime) else str(created)
     meta = [f"Written {when} by bayespool {__version__}" +
             (f" as {file_name}" if file_name else "")]
@@ -86,12 +98,23 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     return page(title or DEFAULT_TITLE, meta, toc, sections, footer)
 
 
+def fitted_prevalence(calibration):
+    """The prevalence a calibration from past runs fitted (estimate, lower, upper), or None."""
+    if calibration is None or not hasattr(calibration, "summary"):
+        return None
+    prev = (calibration.summary().get("parameters") or {}).get("prevalence")
+    return prev if isinstance(prev, dict) and prev.get("estimate") is not None else None
+
+
 def write_report(path, run=None, assay=None, posterior=None, plan=None, calibration=None,
                  title=None, **options) -> Path:
     """Write the report to ``path`` atomically (see :func:`build_report` for ``options``); a path
     that is one of the run's input files is refused."""
     from ..io import check_output_path, check_outputs, write_text
-    check_outputs({"path": path}, (run.sources if run is not None else {}))
+    inputs = dict(run.sources if run is not None else {})
+    audit = options.get("audit")
+    inputs.update({f["role"]: f["name"] for f in (audit.inputs if audit is not None else [])})
+    check_outputs({"path": path}, inputs)
     target = check_output_path(path)
     html = build_report(run, assay, posterior, plan, calibration, title,
                         file_name=options.pop("file_name", target.name), **options)

@@ -12,7 +12,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .markup import el, frame_table, kv_table, section
+from .escape import text
+from .markup import el, frame_table, kv_table, section, value_html
 
 POOL_SIZE = ("pool_size", "k", "size")
 POSITIVES = ("positives", "d", "positive_members", "n_positive_members")
@@ -75,11 +76,41 @@ def observed_points(cells: pd.DataFrame | None) -> tuple[pd.DataFrame | None, pd
     return points, shown
 
 
+KIND_WORDS = {"runs": "past runs (latent truth)", "validation": "validation data (known truth)"}
+
+
+def summary_html(summary: dict) -> str:
+    """A fit's summary for people: the estimates and the families compared as tables, the
+    warnings as a list, the goodness of fit and the rest as labelled values."""
+    summary = dict(summary)
+    summary.pop("assay", None)  # the assay section shows the fitted model
+    params = summary.pop("parameters", {}) or {}
+    comparison = summary.pop("comparison", None)
+    warnings = summary.pop("warnings", None) or []
+    goodness = summary.pop("goodness_of_fit", None)
+    if "kind" in summary:
+        summary["kind"] = KIND_WORDS.get(summary["kind"], summary["kind"])
+    body = kv_table(summary)
+    if params and all(isinstance(v, dict) for v in params.values()):
+        frame = pd.DataFrame([{"parameter": k, **v} for k, v in params.items()])
+        body += el("h4", "Estimates") + frame_table(frame, class_="data params")
+    elif params:
+        body += el("h4", "Estimates") + kv_table(params)
+    if goodness:
+        body += el("h4", "Goodness of fit") + kv_table(goodness)
+    if comparison:
+        body += el("h4", "Sensitivity families compared") + value_html(comparison)
+    if warnings:
+        body += el("div", el("p", "Warnings of the fit:") + el(
+            "ul", "".join(el("li", text(w)) for w in warnings)), class_="warn")
+    return body
+
+
 def calibration_section(calibration, shown_cells: pd.DataFrame | None) -> str:
     summary = calibration.summary() if hasattr(calibration, "summary") else {}
     latent = summary.get("kind") == "runs"
     data = "past runs (pools and individual follow-up tests)" if latent else "validation data"
-    body = el("h3", "Fit summary") + kv_table(summary or {})
+    body = el("h3", "Fit summary") + summary_html(summary or {})
     if shown_cells is not None and len(shown_cells):
         body += el("h3", "Observed against fitted detection") + el(
             "p", f"One row per pool size and number of positive members in the {data}. "

@@ -21,10 +21,26 @@ CALL_RANK = {"negative": 0, "inconclusive": 1, "positive": 2}
 LEAD_COLUMNS = ("sample", "probability", "call", "prior")
 
 
+def pool_ids_column(run, n: int) -> np.ndarray:
+    """Each specimen's pools as text (``P1, P7``), the read ones first."""
+    out = np.full(n, "", dtype=object)
+    read = (run.n_positive + run.n_negative) > 0
+    for i in range(min(n, run.n_samples)):
+        pools = run.pools_of(i)
+        if len(pools):
+            pools = sorted(pools.tolist(), key=lambda t: (not read[t], t))
+            out[i] = ", ".join(str(run.pool_ids[t]) for t in pools)
+    return out
+
+
 def calls_frame(posterior, run=None) -> pd.DataFrame:
-    """The posterior table plus an input-order column and, when known, plate and well."""
+    """The posterior table plus an input-order column, each specimen's pool IDs and, when known,
+    plate and well."""
     frame = posterior.to_frame()
     frame.insert(0, "order", np.arange(1, len(frame) + 1))
+    if run is not None and run.n_samples == len(frame):
+        at = list(frame.columns).index("pools") + 1 if "pools" in frame.columns else len(frame.columns)
+        frame.insert(at, "pool_ids", pool_ids_column(run, len(frame)))
     samples = getattr(run, "samples", None) if run is not None else None
     if samples is not None:
         for col in ("plate", "well"):
@@ -58,7 +74,8 @@ def calls_table(frame: pd.DataFrame) -> str:
         for c in cols:
             v = rec[c]
             if c == "sample":
-                cells.append(f'<th scope="row"><span class="id">{text(v)}</span></th>')
+                cells.append(f'<th scope="row"><a class="id" href="#why-{int(rec["order"]) - 1}"'
+                             f' title="why this call: its pools">{text(v)}</a></th>')
             elif c == "probability":
                 cells.append(f'<td class="num prob" data-value="{fmt.exact(v)}" '
                              f'style="{colour_style}">{text(fmt.prob_long(v))}</td>')

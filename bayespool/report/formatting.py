@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import re
 
 import numpy as np
 
@@ -70,3 +71,18 @@ def is_number(value) -> bool:
 def label(name) -> str:
     """A column or key name made readable: ``positive_pools`` -> ``positive pools``."""
     return str(name).replace("_", " ")
+
+
+_REPR = re.compile(r"^([A-Z][A-Za-z0-9]*)\((.*)\)$")
+
+
+def words(value) -> str:
+    """Text for people from a value that may be a program's spelling of something: an object's
+    repr such as ``PoolSwapMove(rounds=1)`` reads ``pool swap move (rounds 1)``."""
+    s = str(value)
+    m = _REPR.match(s.strip())
+    if not m:
+        return s
+    name = re.sub(r"(?<=[a-z0-9])(?=[A-Z])", " ", m.group(1)).lower()
+    args = ", ".join(a.strip().replace("=", " ") for a in m.group(2).split(",") if a.strip())
+    return f"{name} ({args})" if args else name

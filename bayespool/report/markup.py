@@ -32,30 +32,40 @@ def el(name: str, content: str = "", **attrs) -> str:
 
 
 def value_html(value) -> str:
-    """Display markup of one value of any kind (number, string, list, dict, array)."""
+    """Display markup of one value of any kind (number, string, list, dict, array), written for
+    people: lists as plain comma-separated text, lists of records as tables, nothing shown as
+    Python would print it (no brackets, no ``None``, no object reprs)."""
     if value is None:
         return '<span class="muted">none</span>'
     if isinstance(value, Mapping):
         return kv_table(value, nested=True)
+    if isinstance(value, pd.DataFrame):
+        return frame_table(value, class_="data nested")
     if isinstance(value, (list, tuple, np.ndarray, pd.Series)):
         seq = list(np.asarray(value, dtype=object).ravel()) if not isinstance(value, (list, tuple)) \
             else list(value)
-        if seq and all(fmt.is_number(v) for v in seq) and len(seq) > MAX_LIST:
+        if not seq:
+            return '<span class="muted">none</span>'
+        if all(isinstance(v, Mapping) for v in seq):
+            return frame_table(pd.DataFrame(seq), class_="data nested")
+        if all(fmt.is_number(v) for v in seq) and len(seq) > MAX_LIST:
             arr = np.asarray(seq, dtype=float)
             return text(f"{len(arr)} values: min {fmt.number(np.nanmin(arr))}, median "
                         f"{fmt.number(np.nanmedian(arr))}, max {fmt.number(np.nanmax(arr))}")
         shown = ", ".join(_scalar(v) for v in seq[:MAX_LIST])
         more = f", \u2026 ({len(seq) - MAX_LIST} more)" if len(seq) > MAX_LIST else ""
-        return f"[{shown}{text(more)}]"
+        return f"{shown}{text(more)}"
     return _scalar(value)
 
 
 def _scalar(value) -> str:
     if isinstance(value, Mapping) or isinstance(value, (list, tuple, np.ndarray)):
         return value_html(value)
+    if value is None:
+        return '<span class="muted">none</span>'
     if fmt.is_number(value) or isinstance(value, (bool, np.bool_)):
         return text(fmt.number(value))
-    return text(value)
+    return text(fmt.words(value))
 
 
 def kv_table(data: Mapping, nested: bool = False, class_: str = "kv") -> str:
@@ -90,6 +100,8 @@ def frame_table(frame: pd.DataFrame, class_: str = "data", caption: str | None =
                 cells.append(num_cell(v, show(v) if show else None))
             elif _missing(v):
                 cells.append(el("td", "", class_="blank"))
+            elif isinstance(v, (bool, np.bool_)) and not show:
+                cells.append(el("td", text(fmt.number(v))))
             else:
                 cells.append(el("td", text(show(v)) if show else value_html(v)))
         extra = row_attrs(i) if row_attrs else {}

@@ -88,6 +88,7 @@ def plate_html(plate: Plate, sample_ids, probability, calls, colours) -> str:
             content = el("span", text(fmt.prob_short(p)), class_="wp")
             if mark:
                 content += el("span", mark, class_="wm", aria_hidden="true")
+            content = el("a", content, href=f"#why-{int(i)}", class_="why-link")
             cells.append(el("td", content, class_=f"well call-{call}", style=colours[i], title=tip,
                             data_sample=sample_ids[i], data_value=fmt.exact(p)))
         body.append(el("tr", "".join(cells)))

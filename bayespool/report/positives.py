@@ -20,7 +20,14 @@ TABLE_FROM = 5e-4  # counts with a smaller probability are left out of the print
 def count_distribution(posterior) -> tuple[np.ndarray | None, str]:
     """(P(count = c) for c = 0..n, where it comes from), or (None, reason)."""
     if posterior.count_distribution is not None:
-        return np.asarray(posterior.count_distribution, dtype=float), "exact"
+        dist = np.asarray(posterior.count_distribution, dtype=float)
+        if "gibbs" in str(posterior.method).split("+"):
+            return dist, ("Gibbs sampler: the share of recorded sweeps with each count (Monte "
+                          "Carlo, approximate)")
+        if "bp" in str(posterior.method).split("+"):
+            return dist, ("exact for the groups decoded exactly; groups decoded by belief "
+                          "propagation enter through their probabilities (approximate)")
+        return dist, "exact enumeration of every joint state"
     draws = posterior.draws
     if draws is not None and len(draws):
         per_draw = np.asarray(draws, dtype=np.int64).sum(axis=1)

@@ -68,8 +68,13 @@ JS = r"""
     return -1;
   }
   function fromAddress() {
-    var h;
+    var h, target;
     try { h = decodeURIComponent(location.hash || ""); } catch (e) { return; }
+    if (h.indexOf("#why-") === 0) {  // open the specimen's entry the link points at
+      target = document.getElementById(h.slice(1));
+      if (target && target.tagName === "DETAILS") { target.open = true; target.scrollIntoView(); }
+      return;
+    }
     if (h.indexOf("#view:") !== 0) { return; }
     h.slice(6).split(";").forEach(function (part) {
       var eq = part.indexOf("="), name = part.slice(0, eq), value = part.slice(eq + 1);
@@ -88,13 +93,16 @@ JS = r"""
     search.value = ""; pick.value = ""; filter();
   });
   Array.prototype.forEach.call(document.querySelectorAll("td.well[data-sample]"), function (w) {
-    w.addEventListener("click", function () {
+    w.addEventListener("click", function (e) {
+      if (e.target.closest && e.target.closest("a")) { return; }  // the link opens its entry
       search.value = "=" + w.getAttribute("data-sample"); pick.value = ""; filter();
       table.scrollIntoView();
     });
   });
   window.addEventListener("beforeprint", function () {  // a filed copy shows everything
-    Array.prototype.forEach.call(document.querySelectorAll("details"), function (d) { d.open = true; });
+    Array.prototype.forEach.call(document.querySelectorAll("details:not(.why)"), function (d) {
+      d.open = true;
+    });
   });
   document.getElementById("calls-controls").hidden = false;
   window.addEventListener("hashchange", fromAddress);

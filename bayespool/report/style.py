@@ -101,9 +101,23 @@ table.plate td.empty { background: repeating-linear-gradient(45deg, #fff, #fff 4
 details > summary { cursor: pointer; color: var(--accent); margin: 6px 0; }
 footer { border-top: 1px solid var(--rule); margin-top: 30px; padding-top: 10px; padding-bottom: 30px;
   font-size: 0.88rem; color: var(--muted); }
+section.review .fields { display: flex; flex-wrap: wrap; gap: 1rem 2rem; margin-top: 0.8rem; }
+section.review .field { display: flex; align-items: flex-end; gap: 0.5rem; flex: 1 1 16rem; }
+section.review .line { flex: 1; border-bottom: 1px solid #000; min-height: 1.6rem; }
+table.inputs td:last-child { font-family: monospace; font-size: 0.8rem; word-break: break-all; }
+details.why { margin: 0.2rem 0; }
+details.why > summary { cursor: pointer; }
+details.why[open] { border-left: 3px solid #555; padding-left: 0.5rem; }
+details.technical > summary, details.fit > summary { cursor: pointer; font-weight: 600; }
+td.well a.why-link { color: inherit; text-decoration: none; display: block; }
 @media print {
   html { font-size: 11px; }
   nav.toc, .controls, noscript { display: none !important; }
+  a { color: inherit; text-decoration: none; }
+  details.why:not([open]) { display: none; }
+  section.review { break-inside: avoid; break-before: auto; margin-top: 2rem; }
+  section.review .line { min-height: 2.2rem; }
+  footer { break-inside: avoid; }
   .scroll.tall { max-height: none; overflow: visible; border: 0; }
   table.data thead th { position: static; }
   tr, .plate, figure, .caution { break-inside: avoid; }

@@ -8,7 +8,7 @@ import pandas as pd
 
 from . import formatting as fmt
 from .escape import text
-from .markup import el, facts, frame_table, kv_table, section
+from .markup import el, facts, frame_table, kv_table, section, value_html
 from .plots import covered, sensitivity_curve
 
 CONVERGENCE_KEYS = ("converged", "convergence")
@@ -36,8 +36,10 @@ def _prior(prior: np.ndarray) -> str:
                 f"{fmt.number(float(np.median(prior)))})")
 
 
-def run_section(run, notes=()) -> str:
-    """Specimens, pools, readouts, input files and notes."""
+def run_section(run, notes=(), fitted_prevalence: Mapping | None = None) -> str:
+    """Specimens, pools, readouts, input files and notes. ``fitted_prevalence`` (estimate, lower,
+    upper of a calibration from these runs) replaces the prior line, which would otherwise show
+    the default prevalence the fit did not use."""
     read = (run.n_positive + run.n_negative) > 0
     in_read = np.zeros(run.n_samples, bool)
     if run.n_memberships:
@@ -56,7 +58,11 @@ def run_section(run, notes=()) -> str:
                           f" positive, {fmt.number(int(run.n_negative.sum()))} negative; "
                           f"{fmt.number(int(np.sum(run.n_positive > 0)))} pool(s) with a positive "
                           f"readout; {fmt.number(replicated)} pool(s) read more than once")),
-        ("Prior", _prior(run.prior)),
+        ("Prior", _prior(run.prior)) if fitted_prevalence is None else
+        ("Prevalence", text(f"{fmt.number(fitted_prevalence['estimate'])} fitted by the "
+                            f"calibration (interval {fmt.number(fitted_prevalence['lower'])} to "
+                            f"{fmt.number(fitted_prevalence['upper'])}); the calibration fits one "
+                            "prevalence for every specimen")),
     ]
     ct = run.readout_ct
     if ct is not None and len(ct) and np.isfinite(ct["ct"]).any():
@@ -98,17 +104,48 @@ def pools_table(run) -> str:
                             "and members") + el("div", table, class_="scroll"), class_="pools")
 
 
-def assay_section(assay, run=None, observed=None) -> str:
-    """The assay model in words and numbers, with its sensitivity curve."""
+def fit_html(details: Mapping) -> str:
+    """An assay file's ``[fit]`` table for people: the estimates as a table, warnings as a list,
+    the rest as labelled values."""
+    details = dict(details)
+    parts = []
+    estimates = details.pop("estimates", None)
+    warnings = details.pop("warnings", None)
+    comparison = details.pop("comparison", None)
+    if details:
+        parts.append(kv_table(details))
+    if isinstance(estimates, Mapping) and estimates:
+        frame = pd.DataFrame([{"parameter": k, **(v if isinstance(v, Mapping) else {"estimate": v})}
+                              for k, v in estimates.items()])
+        parts.append(el("h4", "Estimates") + frame_table(frame, class_="data nested"))
+    if comparison:
+        parts.append(el("h4", "Families compared") + value_html(comparison))
+    if warnings:
+        parts.append(el("h4", "Warnings of the fit") + el(
+            "ul", "".join(el("li", text(w)) for w in warnings), class_="plain"))
+    return "".join(parts)
+
+
+FIT_TABLES = ("estimates", "warnings", "comparison", "goodness_of_fit")
+
+
+def assay_section(assay, run=None, observed=None, shown_elsewhere=()) -> str:
+    """The assay model in words and numbers, with its sensitivity curve. How it was fitted (the
+    assay file's ``[fit]`` table) is folded here, less what the calibration section of the same
+    report already shows (``shown_elsewhere``: keys of its summary), so nothing is shown twice."""
     s = assay.sensitivity
     params = {k: v for k, v in s.to_dict().items() if k not in ("model", "table")}
     items = [("Model", text(assay.describe())), ("Specificity", text(fmt.number(assay.specificity))),
              ("Sensitivity family", text(s.model))]
     if params:
         items.append(("Parameters", kv_table(params)))
-    if assay.details:
-        items.append(("Fit", kv_table(assay.details)))
     body = facts(items)
+    hidden = set(shown_elsewhere) | (set(FIT_TABLES) if shown_elsewhere else set())
+    details = {k: v for k, v in (assay.details or {}).items() if k not in hidden}
+    if details:
+        more = " (the estimates are in the calibration section)" if shown_elsewhere else ""
+        body += el("details", el("summary", "How this assay was fitted" + more) +
+                   fit_html(details), class_="fit")
     sizes = None
     if run is not None:
         read = (run.n_positive + run.n_negative) > 0
@@ -131,19 +168,45 @@ def assay_section(assay, run=None, observed=None) -> str:
     return section("assay", "Assay model", body)
 
 
+DECODER_WORDS = {"exact": "exact enumeration of every joint state",
+                 "bp": "belief propagation (approximate on loopy groups)",
+                 "gibbs": "Gibbs sampler (Monte Carlo)"}
+
+
+def decoder_words(method: str) -> str:
+    return " and ".join(DECODER_WORDS.get(m, m) for m in str(method).split("+"))
+
+
 def decoder_section(posterior, run=None) -> str:
-    """Decoder, thresholds, call counts, convergence and every diagnostic it reported."""
+    """Call counts, thresholds, whether the decoder converged and its warnings; the diagnostics'
+    jargon (components, sweeps, residuals) is folded into a technical section."""
     c = posterior.counts()
     tiles = el("div", "".join(
         el("div", el("span", text(fmt.number(c[k])), class_="n") + el("span", k, class_="k"),
            class_=f"tile tile-{k}") for k in ("positive", "inconclusive", "negative")),
         class_="tiles", id="call-counts")
     methods = pd.Series(posterior.sample_method).value_counts()
-    items = [("Decoder", text(posterior.method) + (
-        " " + el("span", text("(" + ", ".join(f"{m}: {n}" for m, n in methods.items()) + ")"),
+    items = [("Decoder", text(decoder_words(posterior.method)) + (
+        " " + el("span", text("(" + ", ".join(f"{decoder_words(m)}: {n} specimens"
+                                              for m, n in methods.items()) + ")"),
                  class_="muted") if len(methods) > 1 else "")),
              ("Calls", text(f"positive when P > {posterior.positive_above:g}, negative when "
                             f"P < {posterior.negative_below:g}, otherwise inconclusive"))]
+    diag = {k: v for k, v in (posterior.diagnostics or {}).items() if k not in SKIP_DIAGNOSTICS}
+    body = tiles + convergence_banner(diag) + facts(items)
+    shown = set(run.notes or []) if run is not None else set()  # already in the run summary
+    warnings = [w for w in posterior.warnings if w not in shown]
+    if warnings:
+        body += el("div", el("p", "Warnings from the decoder:") + el(
+            "ul", "".join(el("li", text(w)) for w in warnings)), class_="warn")
+    body += technical_details(posterior, diag)
+    return section("decoder", "Decoder and convergence", body)
+
+
+def technical_details(posterior, diag: Mapping) -> str:
+    """The decoder's own figures for a statistician, folded away: evidence, Monte Carlo error,
+    draws and every diagnostic it reported."""
+    items = []
     if posterior.log_evidence is not None:
         items.append(("Log evidence", text(f"{posterior.log_evidence:.4f} (natural log of the "
                                            "probability of the readouts under the model)")))
@@ -152,16 +215,12 @@ def decoder_section(posterior, run=None) -> str:
                                                 f"{fmt.number(float(np.nanmax(posterior.mcse)))}")))
     if posterior.draws is not None:
         items.append(("Posterior draws", text(f"{fmt.number(len(posterior.draws))} kept")))
-    diag = {k: v for k, v in (posterior.diagnostics or {}).items() if k not in SKIP_DIAGNOSTICS}
-    body = tiles + convergence_banner(diag) + facts(items)
-    if diag:
-        body += el("h3", "Diagnostics") + kv_table(diag)
-    shown = set(run.notes or []) if run is not None else set()  # already in the run summary
-    warnings = [w for w in posterior.warnings if w not in shown]
-    if warnings:
-        body += el("div", el("p", "Warnings from the decoder:") + el(
-            "ul", "".join(el("li", text(w)) for w in warnings)), class_="warn")
-    return section("decoder", "Decoder and convergence", body)
+    inner = facts(items) + (el("h3", "Diagnostics") + kv_table(diag) if diag else "")
+    if not inner.strip():
+        return ""
+    return el("details", el("summary", "Technical details: how the decoder ran (groups of linked "
+                                       "specimens, sweeps, residuals, sampler figures)") + inner,
+              class_="technical", id="technical-decoder")
 
 
 def convergence_banner(diag: Mapping) -> str:

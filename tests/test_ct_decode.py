@@ -1,0 +1,177 @@
+"""Decoding with Ct readouts.
+
+References: an independent brute force written here from the model's definition (enumerate every
+status vector, integrate the positive specimens' shared individual Cts on a full tensor grid of a
+different step), and structural facts of the model (pools that share no specimen are independent
+given the statuses, so belief propagation on per-pool Ct likelihoods is exact there).
+"""
+import itertools
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import stats
+from scipy.special import logsumexp
+
+from bayespool.assay import Assay
+from bayespool.decode import decode
+from bayespool.run import Run
+
+CT = {"specificity": 0.99, "ct": {
+    "cutoff": 40.0, "cycles_per_doubling": 1.0, "noise_sd": 0.5, "detection_max": 0.97,
+    "false_positive_low": 32.0,
+    "positive": [{"weight": 0.6, "mean": 30.0, "sd": 2.5}, {"weight": 0.4, "mean": 25.0,
+                                                          "sd": 2.0}]}}
+
+
+@pytest.fixture(scope="module")
+def assay():
+    return Assay.from_dict(CT)
+
+
+def make_run(pools, readouts, prior):
+    lay = pd.DataFrame([(p, s) for p, members in pools.items() for s in members],
+                       columns=["pool", "sample"])
+    rd = pd.DataFrame(readouts, columns=["pool", "result", "ct"])
+    return Run.from_frames(lay, rd, prevalence=prior)
+
+
+STEPS = {0: 1.0, 1: 0.2, 2: 0.25, 3: 0.4, 4: 0.75}  # full tensor grids stay below 1e7 points
+
+
+def brute_force(assay, pools, readouts, prior):
+    """P(x_i = 1) and E[c_i | x_i = 1] by enumeration and a full tensor grid over the Cts (steps
+    from STEPS by the number of positives; the trapezoid rule on these smooth integrands)."""
+    m = assay.ct
+    specimens = sorted({s for mem in pools.values() for s in mem})
+
+    def prior_grid(step):
+        grid = np.arange(min(m.means) - 7 * max(m.sds), max(m.means) + 7 * max(m.sds), step)
+        logf = logsumexp([np.log(w) + stats.norm.logpdf(grid, mu, sd)
+                          for w, mu, sd in zip(m.weights, m.means, m.sds)], axis=0)
+        return grid, logf + np.log(step)
+
+    def pool_term(k, amount, rows):
+        # log P(readouts of one pool | amounts), from the issue's model
+        if amount is None:
+            out = 0.0
+            for res, ct in rows:
+                if res == "positive":
+                    ok = ct == "" or (m.false_positive_low <= float(ct) < m.cutoff)
+                    out += np.log(1 - assay.specificity) - (
+                        0 if ct == "" else np.log(m.cutoff - m.false_positive_low)) if ok \
+                        else -np.inf
+                else:
+                    out += np.log(assay.specificity)
+            return out
+        C = np.log2(k) - np.log2(amount)
+        out = 0.0
+        amp = m.detection_max * stats.norm.cdf((m.cutoff - C) / m.noise_sd)
+        for res, ct in rows:
+            if res == "positive" and ct != "":
+                out = out + np.log(m.detection_max) + stats.norm.logpdf(float(ct), C, m.noise_sd)
+            elif res == "positive":
+                out = out + np.log(amp)
+            else:
+                out = out + np.log1p(-amp)
+        return out
+    by_pool = {p: [(r, c) for q, r, c in readouts if q == p] for p in pools}
+    weights, states, marg = [], [], []
+    for bits in itertools.product([0, 1], repeat=len(specimens)):
+        pos = [s for s, b in zip(specimens, bits) if b]
+        q = len(pos)
+        grid, logf = prior_grid(STEPS[q])
+        lp = sum(np.log(prior) if b else np.log1p(-prior) for b in bits)
+        total = np.zeros((len(grid),) * q) if q else np.zeros(())
+        for a in range(q):
+            shape = [1] * q
+            shape[a] = len(grid)
+            total = total + logf.reshape(shape)
+        for p, mem in pools.items():
+            inside = [pos.index(s) for s in mem if s in pos]
+            if not inside:
+                total = total + pool_term(len(mem), None, by_pool[p])
+                continue
+            amount = 0.0
+            for a in inside:
+                shape = [1] * q
+                shape[a] = len(grid)
+                amount = amount + np.exp2(-grid).reshape(shape)
+            total = total + pool_term(len(mem), amount, by_pool[p])
+        total = np.broadcast_to(total, (len(grid),) * q)
+        weights.append(lp + logsumexp(total))
+        states.append(pos)
+        means = {}
+        for a, s in enumerate(pos):
+            mg = logsumexp(total, axis=tuple(b for b in range(q) if b != a)) if q > 1 else total
+            if np.isfinite(mg).any():  # else the state is impossible and has weight 0
+                w = np.exp(mg - mg.max())
+                means[s] = float(w @ grid / w.sum())
+        marg.append(means)
+    w = np.exp(np.array(weights) - logsumexp(weights))
+    prob = {s: sum(wi for wi, st in zip(w, states) if s in st) for s in specimens}
+    ct = {s: sum(wi * mg[s] for wi, st, mg in zip(w, states, marg) if s in st and wi > 0)
+          / prob[s] for s in specimens}
+    return prob, ct
+
+
+CASES = {
+    # a specimen in a pool of three and in a pool of two, with its own and a neighbour's retest
+    "linked": ({"P1": ["a", "b", "c"], "P2": ["a", "b"], "P3": ["b"], "P4": ["c"]},
+               [("P1", "positive", "29.4"), ("P2", "positive", "29.1"), ("P3", "negative", ""),
+                ("P4", "positive", "")], 0.08),
+    # a 2 x 2 array: rows and columns read with Cts of two different strengths
+    "array": ({"R1": ["a", "b"], "R2": ["c", "d"], "C1": ["a", "c"], "C2": ["b", "d"]},
+              [("R1", "positive", "27.2"), ("R2", "positive", "33.0"), ("C1", "positive", "27.0"),
+               ("C2", "positive", "33.3")], 0.1),
+}
+
+
+@pytest.mark.parametrize("case", sorted(CASES))
+def test_exact_ct_against_brute_force(assay, case):
+    pools, readouts, prior = CASES[case]
+    run = make_run(pools, readouts, prior)
+    post = decode(run, assay, method="exact")
+    want, want_ct = brute_force(assay, pools, readouts, prior)
+    frame = post.to_frame().set_index("sample")
+    for s, p in want.items():
+        assert frame.loc[s, "probability"] == pytest.approx(p, abs=2e-4), s
+        if p > 0.05 and not np.isnan(frame.loc[s, "ct_mean"]):
+            assert frame.loc[s, "ct_mean"] == pytest.approx(want_ct[s], abs=0.05), s
+    assert post.diagnostics["ct"]["ignores_shared_ct"] is False
+
+
+def test_ct_separates_array_crossings(assay):
+    # the binary reading cannot tell the diagonal from the anti-diagonal; matching Cts can
+    pools, readouts, prior = CASES["array"]
+    run = make_run(pools, readouts, prior)
+    p = decode(run, assay, method="exact").to_frame().set_index("sample")["probability"]
+    assert p["a"] > 0.9 and p["d"] > 0.9 and p["b"] < 0.1 and p["c"] < 0.1
+    binary = Assay.from_dict({"specificity": 0.99, "sensitivity": {"model": "constant",
+                                                                   "value": 0.97}})
+    plain = make_run(pools, [(q, r, "") for q, r, _ in readouts], prior)
+    pb = decode(plain, binary, method="exact").to_frame().set_index("sample")["probability"]
+    assert pb["a"] == pytest.approx(pb["b"], abs=1e-9)
+
+
+def test_bp_exact_where_no_specimen_is_shared(assay):
+    # separate pools (with replicates) share no Ct: per-pool integration is the exact model
+    rng = np.random.default_rng(5)
+    pools = {f"P{t}": [f"S{t}_{j}" for j in range(6)] for t in range(5)}
+    readouts = []
+    for t in range(5):
+        for _ in range(2):
+            hit = rng.random() < 0.5
+            readouts.append((f"P{t}", "positive" if hit else "negative",
+                             f"{rng.uniform(28, 36):.2f}" if hit and t % 2 else ""))
+    run = make_run(pools, readouts, 0.05)
+    a = decode(run, assay, method="exact").probability
+    b = decode(run, assay, method="bp").probability
+    np.testing.assert_allclose(a, b, atol=1e-9)
+
+
+def test_bp_says_it_ignores_shared_cts(assay):
+    pools, readouts, prior = CASES["array"]
+    post = decode(make_run(pools, readouts, prior), assay, method="bp")
+    assert post.diagnostics["ct"]["ignores_shared_ct"] is True
+    assert any("shared" in w for w in post.warnings)
