@@ -83,8 +83,9 @@ def spread(fit, u_written, sp_counts, draws: int = DRAWS, seed: int = 0) -> dict
     sensitivity parameters on their unconstrained scale (rows), ``sensitivity_ess`` the effective
     number of the importance draws they were resampled from.
     """
-    out = {"rule": "specificity ~ Jeffreys posterior Beta(a, b); sensitivity parameters: draws "
-                   "from their posterior under Jeffreys' prior (importance resampling)"}
+    out = {"rule": "specificity: its Jeffreys posterior, a beta distribution with the parameters "
+                   "specificity_beta; sensitivity parameters: draws from their posterior under "
+                   "Jeffreys' prior on the logit or log scale (importance resampling)"}
     if sp_counts is not None:
         a, b = jeffreys(*sp_counts)
         out["specificity_beta"] = [a, b]
