@@ -122,7 +122,6 @@ def _load_inputs(args):
     """The run and the assay; the note about a default assay comes only once the inputs read
     cleanly, so bad input gets exactly one line on stderr."""
     from .assay import DEFAULT_ASSAY, Assay
-    from .run import Run
     from .controls import read_run
     assay = Assay.read(args.assay) if args.assay else DEFAULT_ASSAY
     if getattr(args, "assay_uncertainty", False):
@@ -144,7 +143,9 @@ def _load_inputs(args):
 
 
 def _note(args, text: str) -> None:
-    print(f"bayespool {args.command}: note: {text}", file=sys.stderr)
+    """A note for stderr, printed when the command succeeds: input that turns out to be bad gets
+    its one error line and nothing else."""
+    args.pending_notes.append(f"bayespool {args.command}: note: {text}")
 
 
 def _add_worklist_options(p) -> None:
@@ -963,10 +964,14 @@ def main(argv=None) -> int:
         parser.print_help()
         return 2
     _, run = COMMANDS[args.command]
+    args.pending_notes = []
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", UserWarning)
-            return run(args)
+            code = run(args)
+        for note in args.pending_notes:
+            print(note, file=sys.stderr)
+        return code
     except InputError as exc:
         print(f"bayespool {args.command}: error: {exc}", file=sys.stderr)
         return 2

@@ -42,6 +42,7 @@ class Table:
     """
 
     delimiter: str | None = ","
+    unit = "line"  # what line_of counts: file lines here, sheet or DataFrame rows in subclasses
 
     def __init__(self, frame: pd.DataFrame, path: str, header: list[str],
                  delimiter: str | None = ","):
@@ -87,6 +88,8 @@ class Table:
 class FrameTable(Table):
     """A DataFrame given to the library, as strings; errors name the 0-based row and the column."""
 
+    unit = "row"
+
     def __init__(self, frame: pd.DataFrame, name: str, required: list[str], what: str):
         frame = frame.reset_index(drop=True)
         header = match_header(list(frame.columns), required, what, name, line=None)
@@ -105,6 +108,8 @@ class FrameTable(Table):
 
 class SheetTable(Table):
     """A sheet of a workbook read as strings; errors name the sheet's row and column letter."""
+
+    unit = "row"
 
     def __init__(self, frame: pd.DataFrame, path: str, header: list[str], rows: list[int],
                  columns: list[str]):

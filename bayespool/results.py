@@ -80,7 +80,7 @@ def skipped_note(table, codes: np.ndarray, column: str = "result", shown: int = 
     if not len(rows):
         return None
     words = table.frame[column].iloc[rows].map(normalise).to_numpy()
-    unit = "row" if getattr(table, "letters", None) else "line"
+    unit = table.unit
     parts = []
     for word in dict.fromkeys(words):
         these = rows[words == word]

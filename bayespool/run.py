@@ -6,7 +6,6 @@ nothing is dense. Replicate readouts of a pool are folded into counts of positiv
 """
 from __future__ import annotations
 
-import math
 import warnings
 from dataclasses import dataclass, field
 
@@ -267,7 +266,7 @@ class Run(PoolIncidence):
                     lines = ", ".join(map(str, rd.lines(odd[:10])))
                     more = f" and {len(odd) - 10} more" if len(odd) > 10 else ""
                     notes.append(f"{rd.path}: {len(odd)} negative readout(s) carry a Ct value "
-                                 f"(line{'s' if len(odd) > 1 else ''} {lines}{more}); they are "
+                                 f"({rd.unit}{'s' if len(odd) > 1 else ''} {lines}{more}); they are "
                                  "read as negative: check the result or the Ct")
                 ct_frame = pd.DataFrame({"pool": pidx[keep], "result": res[keep],
                                          "ct": vals[keep]})

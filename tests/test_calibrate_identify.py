@@ -51,6 +51,8 @@ def test_allow_unidentified_writes_the_fit_marked_as_such(cli, tmp_path):
     assert res.code == 0, res.err
     assert json.loads(res.out)["identifiable"] is False
     assert Assay.read(out).details["identified"] is False
+    # the plot beside it says so in its title
+    assert "not identified by the data" in (tmp_path / "assay-curve.svg").read_text()
 
 
 def test_identified_fit_is_written_without_the_option(cli, tmp_path):

@@ -175,3 +175,50 @@ def test_bp_says_it_ignores_shared_cts(assay):
     post = decode(make_run(pools, readouts, prior), assay, method="bp")
     assert post.diagnostics["ct"]["ignores_shared_ct"] is True
     assert any("shared" in w for w in post.warnings)
+
+
+@pytest.mark.parametrize("case", sorted(CASES))
+def test_ct_sampler_against_exact(assay, case):
+    # the Ct sampler (statuses and shared Cts jointly) against the exact joint enumeration,
+    # within Monte Carlo error (4 chains, at least 2000 sweeps, R-hat <= 1.01 and ESS >= 400)
+    pools, readouts, prior = CASES[case]
+    run = make_run(pools, readouts, prior)
+    exact = decode(run, assay, method="exact")
+    post = decode(run, assay, method="gibbs", seed=3)
+    np.testing.assert_allclose(post.probability, exact.probability, atol=0.015)
+    assert post.diagnostics["gibbs"]["max_rhat"] <= 1.05  # rare 0/1 draws: rank R-hat is noisy
+    a = exact.to_frame().set_index("sample")
+    b = post.to_frame().set_index("sample")
+    sure = a["probability"] > 0.5
+    np.testing.assert_allclose(b.loc[sure, "ct_mean"], a.loc[sure, "ct_mean"], atol=0.15)
+
+
+def test_auto_sends_a_shared_array_to_the_ct_sampler(assay):
+    # 4 x 6 array (24 specimens: beyond the exact Ct enumeration), one strong positive
+    pools = {**{f"R{r}": [f"S{r}{c}" for c in range(6)] for r in range(4)},
+             **{f"C{c}": [f"S{r}{c}" for r in range(4)] for c in range(6)}}
+    readouts = [(p, "negative", "") for p in pools]
+    readouts[1] = ("R1", "positive", "27.5")
+    readouts[4 + 2] = ("C2", "positive", "26.9")
+    post = decode(make_run(pools, readouts, 0.02), assay, method="auto", seed=2)
+    assert post.diagnostics["decoders"] == {"gibbs": {"components": 1, "samples": 24}}
+    frame = post.to_frame().set_index("sample")
+    assert frame.loc["S12", "probability"] > 0.99
+    # pooled Cts 27.5 (row of 6) and 26.9 (column of 4): individual Ct near 25
+    assert 24.0 < frame.loc["S12", "ct_mean"] < 26.0
+    assert post.diagnostics["ct"]["ignores_shared_ct"] is False
+
+
+def test_array_brier_script_small():
+    # scripts/ct_array_brier.py on a few arrays: reading the Cts must beat the binary reading at
+    # the crossings of amplified rows and columns (the full figures come from the script)
+    import importlib.util
+    from pathlib import Path
+    path = Path(__file__).resolve().parents[1] / "scripts" / "ct_array_brier.py"
+    spec = importlib.util.spec_from_file_location("ct_array_brier", path)
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    res = mod.study(runs=4, seed=7, sweeps=800)
+    b, _ = mod.brier(res["cross_binary"])
+    c, _ = mod.brier(res["cross_ct"])
+    assert c < 0.5 * b, (c, b)

@@ -6,7 +6,6 @@ posterior to the last digit), pandas' reader for the fast path, openpyxl (the wo
 itself writes the test workbooks). That spreadsheets in many locales save semicolon-separated files
 with a decimal comma, and that plates are 96 (8 x 12) or 384 (16 x 24) wells, is common practice.
 """
-import numpy as np
 import pandas as pd
 import pytest
 
@@ -279,3 +278,11 @@ def test_bad_input_without_assay_is_one_line(cli, tmp_path):
     res = cli("decode", "--layout", files["layout"], "--readouts", files["readouts"], "--out",
               tmp_path / "post.csv")
     assert res.code == 0 and "no --assay given" in res.err
+
+
+def test_an_error_after_the_inputs_read_is_still_one_line(cli, tmp_path):
+    # the default-assay note is held back until the command succeeds
+    files = make_files(tmp_path)
+    res = cli("plan", "--layout", files["layout"], "--readouts", files["readouts"], "--tests", 0,
+              "--out", tmp_path / "next.csv")
+    assert_bad(res, "tests")

@@ -261,3 +261,23 @@ def test_print_copy_has_review_fields_and_a_print_stylesheet(reports):
         ["Reviewed by", "Date", "Signature"]
     style = page.find("style").text()
     assert "@media print" in style and "section.review" in style.split("@media print")[1]
+
+
+def test_large_run_lists_only_the_specimens_not_called_negative():
+    from bayespool.assay import Assay, ConstantSensitivity
+    from bayespool.decode import decode
+    from bayespool.report import build_report
+    from bayespool.report.why import ALL_UP_TO
+    from bayespool.run import Run
+    n = ALL_UP_TO + 200
+    pools = np.arange(n) // 8
+    readout = np.zeros(pools.max() + 1, dtype=int)
+    readout[3] = 1  # one positive pool: its eight members are not negative
+    run = Run.from_arrays(pools, np.arange(n), n, pools.max() + 1, 0.01,
+                          np.arange(pools.max() + 1), readout)
+    post = decode(run, Assay(0.99, ConstantSensitivity(0.95)))
+    page = parse(build_report(run=run, posterior=post, created="2026-01-01"))
+    entries = page.by_id("why").find_all("details", class_="why")
+    not_negative = np.flatnonzero(post.calls() != "negative")
+    assert sorted(int(e.attrs["id"][4:]) for e in entries) == sorted(not_negative.tolist())
+    assert f"the {len(not_negative)} that are not called negative" in page.by_id("why").text()

@@ -79,7 +79,11 @@ def figure(result: Calibration):
     ax.set_xlabel("dilution k / d (pool size / positive members)")
     ax.set_ylabel("probability of a positive readout")
     kind = "validation runs" if result.kind == "validation" else "past runs (latent truth)"
-    ax.set_title(f"Sensitivity against dilution: {result.model} model from {kind}", fontsize=10)
+    title = f"Sensitivity against dilution: {result.model} model from {kind}"
+    if result.identifiable is False:  # written only on request (--allow-unidentified)
+        title += "\nnot identified by the data: the curve is one of many that fit equally well"
+    ax.set_title(title, fontsize=10,
+                 **({"color": "#b00000"} if result.identifiable is False else {}))
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
     sp = result.assay.specificity

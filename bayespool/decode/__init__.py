@@ -257,7 +257,7 @@ def _decode(run, assay, method, negative_below, positive_above, seed, exact_limi
     if shared and method not in ("auto", "gibbs"):
         raise InputError("an unknown prevalence (--prevalence-prior) links every sample; use "
                          "--method gibbs or auto")
-    if method == "gibbs" or shared:
+    if (method == "gibbs" and assay.ct is None) or shared:
         from .gibbs import decode_gibbs
         post = decode_gibbs(run, lik_ptr, loglik, lo, hi, seed, gibbs_options,
                             columns=sample_columns(run))
@@ -272,11 +272,11 @@ def _decode(run, assay, method, negative_below, positive_above, seed, exact_limi
                "negative_below": lo, "positive_above": hi, "gibbs_options": gibbs_options}
     decoders = PART_DECODERS
     if assay.ct is not None:  # shared Cts: joint enumeration where affordable (decode.ct_decode)
-        from .ct_decode import ct_exact_part, ct_options
+        from .ct_decode import ct_exact_part, ct_gibbs_part, ct_options
         options.update(ct_options(run, assay, comps, method, choice))
-        decoders = {**PART_DECODERS, "exact": ct_exact_part}
+        decoders = {**PART_DECODERS, "exact": ct_exact_part, "gibbs": ct_gibbs_part}
     parts = []
-    for name in choice.names():
+    for name in [m for m in decoders if (choice.method == m).any()]:
         part = decoders[name](run, lik_ptr, loglik, comps, choice.components(name), options)
         parts.append(part)
         if len(part.unconverged):

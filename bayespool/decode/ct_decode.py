@@ -24,6 +24,8 @@ from .ct_exact import (CT_EXACT_LIMIT, JOINT_LIMIT, ct_summary, decode_group, ex
 
 # auto: total states enumerated jointly with Ct integrals (a Python loop over states)
 CT_STATE_BUDGET = 1 << 15
+CT_GIBBS_LIMIT = 5000   # auto: shared groups up to this many specimens go to the Ct sampler
+GIBBS_SWEEPS = (2000, 16000)  # first and largest sweeps per chain (doubled until R-hat and ESS pass)
 SHARED_NOTE = ("belief propagation on per-pool Ct likelihoods ignores that a specimen's Ct is "
                "shared by its pools (each pool integrates its positives' Cts on its own)")
 
@@ -56,17 +58,21 @@ def ct_choice(run, comps, method: str, choice):
             raise InputError(f"a group of {int(sizes[big].max())} specimens linked through shared "
                              f"pools is above the exact Ct decoder's limit of {CT_EXACT_LIMIT}; "
                              "use --method auto or bp")
+    if method == "gibbs":
+        choice.method[:] = "gibbs"
     if method == "auto":
         cand = np.flatnonzero(shared & (sizes <= CT_EXACT_LIMIT))
         cand = cand[np.argsort(sizes[cand], kind="stable")]
         within = np.cumsum(np.exp2(sizes[cand].astype(float))) <= CT_STATE_BUDGET
         choice.method[cand[within]] = "exact"
         choice.method[cand[~within]] = "bp"
+        loopy = shared & (choice.method == "bp")
+        choice.method[loopy & (sizes <= CT_GIBBS_LIMIT)] = "gibbs"
         rest = shared & (choice.method == "bp")
         if rest.any():
             notes.append(f"{int(rest.sum())} group(s) of specimens sharing pools are beyond the "
-                         f"exact Ct decoder ({CT_EXACT_LIMIT} specimens, {CT_STATE_BUDGET} states "
-                         f"in all): {SHARED_NOTE}")
+                         f"exact Ct decoder and the Ct sampler ({CT_GIBBS_LIMIT} specimens): "
+                         + SHARED_NOTE)
     elif method == "bp" and shared.any():
         notes.append(SHARED_NOTE)
     return shared, notes
@@ -114,6 +120,45 @@ def ct_exact_part(run, lik_ptr, loglik, comps, selected, options):
         part.warnings.append(f"exact Ct decoding left out states where more than {JOINT_LIMIT} "
                              "positives share pools (prior probability "
                              f"{omitted:.2g} in all); it is exact up to them")
+    return part
+
+
+def ct_gibbs_part(run, lik_ptr, loglik, comps, selected, options):
+    """Part decoder: the Ct sampler (:mod:`bayespool.decode.ct_gibbs`) on the given groups, sweeps
+    doubled from 2000 until split R-hat <= 1.01 and ESS >= 400 on every specimen whose draws vary
+    (or 16000 sweeps per chain, with a warning)."""
+    from . import DecodedPart, _samples_of
+    from .ct_gibbs import sample_ct
+    from .gibbs.diagnostics import rhat_ess
+    selected = np.asarray(selected, dtype=np.int64)
+    specimens = np.sort(_samples_of(comps, selected)).astype(np.int64)
+    sweeps = GIBBS_SWEEPS[0]
+    seed = options.get("seed")
+    while True:
+        p, draws, nodes, hist = sample_ct(run, options["assay"], options["ct_stats"], lik_ptr,
+                                          loglik, specimens, chains=4, sweeps=sweeps,
+                                          burn=sweeps // 4, seed=seed)
+        r, e = rhat_ess(draws.astype(float))
+        ok = bool(np.all(r <= 1.01) and np.all(e >= 400))
+        if ok or sweeps >= GIBBS_SWEEPS[1]:
+            break
+        sweeps *= 2
+    prob = np.array(run.prior, dtype=float)
+    prob[specimens] = p
+    cols = options["ct_columns"]
+    with np.errstate(divide="ignore"):
+        for j, i in enumerate(specimens):
+            if p[j] >= options["negative_below"] and hist[j].sum() > 0:
+                cols["ct_mean"][i], cols["ct_low"][i], cols["ct_high"][i] = \
+                    ct_summary(nodes, np.log(hist[j]))
+    part = DecodedPart("gibbs", selected, specimens, prob, converged=ok,
+                       diagnostics={"sampler": "statuses and shared individual Cts jointly",
+                                    "sweeps_per_chain": sweeps, "chains": 4,
+                                    "max_rhat": float(np.max(r)), "min_ess": float(np.min(e))})
+    if not ok:
+        part.warnings.append(f"the Ct sampler did not reach R-hat <= 1.01 and ESS >= 400 within "
+                             f"{sweeps} sweeps per chain (largest R-hat {np.max(r):.3f}, "
+                             f"smallest ESS {np.min(e):.0f}); its probabilities are approximate")
     return part
 
 
@@ -172,13 +217,14 @@ def finish_ct(post, run, assay, options, choice) -> None:
         for a, name in enumerate(("ct_mean", "ct_low", "ct_high")):
             cols[name][todo] = vals[:, a]
     post.columns.update(cols)
-    ignores = bool(np.any(options["ct_shared"] & (choice.method != "exact")))
+    ignores = bool(np.any(options["ct_shared"] & (choice.method == "bp")))
     post.diagnostics["ct"] = {
         "model": assay.ct.describe(),
         "ignores_shared_ct": ignores,
         "shared_ct": SHARED_NOTE if ignores else "integrated jointly where specimens share pools "
-                                                 "(exact enumeration)",
-        "ct_interval": "exact from the joint enumeration where it ran, elsewhere approximate "
-                       "(at most one other positive per pool, the others at their marginals)",
+                                                 "(exact enumeration or the Ct sampler)",
+        "ct_interval": "exact from the joint enumeration, sampled by the Ct sampler, elsewhere "
+                       "approximate (at most one other positive per pool, the others at their "
+                       "marginals)",
     }
     post.warnings.extend(options["ct_notes"])

@@ -10,9 +10,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from ..wells import FORMATS, parse_well, plate_format
+from ..wells import FORMATS, parse_well, plate_format  # noqa: F401 (plate_format re-exported)
 from . import formatting as fmt
-from ..plates import FORMATS, parse_well, plate_format  # noqa: F401 (re-exported)
 from .escape import text
 from .markup import el
 from .palette import styles

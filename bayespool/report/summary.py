@@ -104,11 +104,22 @@ def pools_table(run) -> str:
                             "and members") + el("div", table, class_="scroll"), class_="pools")
 
 
+FIT_LABELS = {"method": "calibrated from", "bayespool": "bayespool version",
+              "readouts_used": "readouts used", "parameters": "fitted parameters", "aic": "AIC",
+              "level": "confidence level", "identified": "identified by the data",
+              "rows_skipped": "rows skipped"}
+FIT_METHODS = {"validation": "validation data (known truth)",
+               "runs": "past runs (latent truth)"}
+
+
 def fit_html(details: Mapping) -> str:
     """An assay file's ``[fit]`` table for people: the estimates as a table, warnings as a list,
     the rest as labelled values."""
     details = dict(details)
     parts = []
+    if "method" in details:
+        details["method"] = FIT_METHODS.get(details["method"], details["method"])
+    details = {FIT_LABELS.get(k, k): v for k, v in details.items()}
     estimates = details.pop("estimates", None)
     warnings = details.pop("warnings", None)
     comparison = details.pop("comparison", None)
