@@ -771,8 +771,27 @@ def _add_calibrate(sub):
     p.add_argument("--allow-unidentified", action="store_true",
                    help="past runs: write the fit even when the data cannot identify it (it is "
                    "marked so in the file); without this such a fit is refused with the reason")
+    p.add_argument("--ct-cutoff", type=float, default=40.0, metavar="CT",
+                   help="validation with a ct column: the run's Ct cutoff (default: %(default)s)")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
+
+
+def _run_calibrate_ct(args, table):
+    """A validation file with Cts: fit the [ct] load model (bayespool.calibrate.ct_fit)."""
+    from .calibrate.ct_fit import calibrate_ct
+    result = calibrate_ct(table, cutoff=args.ct_cutoff)
+    result.assay.write(args.out)
+    if args.json:
+        summary = result.summary()
+        summary["out"] = args.out
+        print(json.dumps(summary, indent=2))
+    else:
+        print(result.text())
+        print(f"wrote {args.out} (the Ct fit writes no sensitivity plot; `bayespool assay "
+              f"{args.out} --plot FILE` draws the implied curve)")
+        print(CAUTION)
+    return 0
 
 
 def _run_calibrate(args):
@@ -798,6 +817,11 @@ def _run_calibrate(args):
                           for kind, path in plots.items()}, out=args.out, report=args.report)
     run = None
     words = _result_words(args)
+    if args.validation:
+        from .io import read_table
+        table = read_table(args.validation, ["pool_size", "positives", "result"], "validation")
+        if "ct" in table.header:
+            return _run_calibrate_ct(args, table)
     if args.validation:
         data = ValidationData.read(args.validation, words=words)
         result = calibrate_validation(data, args.model, fixed, level=args.level,
