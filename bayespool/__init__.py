@@ -8,11 +8,24 @@ from importlib import import_module
 __version__ = "0.1.0"
 
 _EXPORTS = {
-    "Assay": "bayespool.assay", "ConstantSensitivity": "bayespool.assay",
-    "DilutionSensitivity": "bayespool.assay", "TableSensitivity": "bayespool.assay",
-    "read_assay": "bayespool.assay", "decode": "bayespool.decode",
-    "Posterior": "bayespool.decode.posterior", "InputError": "bayespool.errors",
-    "ImpossibleEvidenceError": "bayespool.errors", "Run": "bayespool.run",
+    # functions
+    "read_run": "bayespool.run", "read_assay": "bayespool.assay", "decode": "bayespool.decoders",
+    "plan": "bayespool.planning", "calibrate": "bayespool.calibration",
+    "make_design": "bayespool.design", "optimal_dorfman": "bayespool.design",
+    "simulate": "bayespool.simulation", "sweep": "bayespool.simulation",
+    "write_report": "bayespool.report",
+    # data and result types
+    "Run": "bayespool.run", "Assay": "bayespool.assay",
+    "ConstantSensitivity": "bayespool.assay", "DilutionSensitivity": "bayespool.assay",
+    "TableSensitivity": "bayespool.assay", "Posterior": "bayespool.decoders.posterior",
+    "Plan": "bayespool.planning", "Calibration": "bayespool.calibration",
+    "ValidationData": "bayespool.calibration", "Design": "bayespool.design",
+    "DesignProperties": "bayespool.design", "DorfmanOptimum": "bayespool.design",
+    "Simulation": "bayespool.simulation", "Sweep": "bayespool.simulation",
+    "estimate_prevalence": "bayespool.surveillance", "read_pools": "bayespool.surveillance",
+    "fit_regression": "bayespool.surveillance.regression",
+    # errors
+    "InputError": "bayespool.errors", "ImpossibleEvidenceError": "bayespool.errors",
 }
 
 __all__ = sorted(_EXPORTS)

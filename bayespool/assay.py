@@ -317,6 +317,7 @@ class Assay:
 
 
 DEFAULT_ASSAY = Assay(0.99, ConstantSensitivity(0.95))
+PERFECT_ASSAY = Assay(1.0, ConstantSensitivity(1.0))   # Se = Sp = 1: the classic surveillance model
 
 
 def read_assay(path) -> Assay:

@@ -1,7 +1,7 @@
 """An assay whose parameters are uncertain: readout likelihoods averaged over the fit's spread.
 
 ``calibrate`` writes the distribution of the fitted parameters into the assay file's
-``[fit.uncertainty]`` table (see ``bayespool/calibrate/boundary.py``): the specificity's Jeffreys
+``[fit.uncertainty]`` table (see ``bayespool/calibration/boundary.py``): the specificity's Jeffreys
 posterior Beta(a, b) and a normal distribution of the sensitivity parameters on their logit/log
 scale. :func:`integrate` turns such an assay into an :class:`IntegratedAssay`, whose per-pool
 likelihood vectors are averaged over that distribution:

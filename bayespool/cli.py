@@ -12,11 +12,28 @@ import os
 import sys
 import warnings
 
-from .errors import InputError
+from .errors import ImpossibleEvidenceError, InputError
 
 CAUTION = ("Statistical decision support, not a diagnostic device: confirm results by the "
            "laboratory's validated procedure, local regulations and the responsible licensed "
            "professional.")
+
+
+# Library errors name the Python parameter; the command line shows the flag that sets it. Flags
+# that are not "--" + the parameter with "-" for "_" are listed here, in this one place.
+FLAGS = {
+    "n_draws": "--posterior-draws",
+    'gibbs_options["chains"]': "--chains",
+    'gibbs_options["max_sweeps"]': "--gibbs-sweeps",
+    'gibbs_options["prevalence_prior"]': "--prevalence-prior",
+    'fixed["specificity"]': "--fix specificity=VALUE",
+    "result_words": "--result-word",
+}
+
+
+def flag(parameter: str) -> str:
+    """The command-line flag that sets a library parameter."""
+    return FLAGS.get(parameter) or "--" + parameter.replace("_", "-")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -303,7 +320,7 @@ def _print_gibbs(post) -> None:
 
 
 def _run_decode(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import write_frame
     _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
@@ -423,6 +440,10 @@ def _add_design(sub):
     p.add_argument("--fill", choices=("columns", "rows"),
                    help="dorfman on plates (samples file with plate and well): pool neighbouring "
                    "wells down the columns (A1, B1, ...; default) or along the rows (A1, A2, ...)")
+    p.add_argument("--by-risk", action="store_true",
+                   help="dorfman: pool specimens of similar prior (samples file with a prior "
+                   "column, e.g. from bayespool regress --priors); without --pool-size, sizes up "
+                   "to --max-pool-size with the fewest expected tests")
     p.add_argument("--rows", type=int, metavar="R",
                    help="array: rows per grid (default 8 x 12, or near-square for few specimens; "
                    "on plates, the plate's own rows and columns, or R x C tiles laid on it)")
@@ -457,7 +478,7 @@ def _add_design(sub):
 
 def _design_options(args) -> dict:
     if args.scheme == "dorfman":
-        return {"pool_size": args.pool_size, "fill": args.fill}
+        return {"pool_size": args.pool_size, "fill": args.fill, "by_risk": args.by_risk}
     if args.scheme == "array":
         return {"rows": args.rows, "cols": args.cols}
     if args.scheme == "kautz-singleton":
@@ -471,6 +492,8 @@ def _design_options(args) -> dict:
 def _run_design(args):
     from .design import make_design, optimal_dorfman
     from .io import write_frame
+    if args.by_risk and args.scheme != "dorfman":
+        raise InputError("--by-risk is for --scheme dorfman")
     _check_outputs(args, out=args.out, worklist=args.worklist)
     summary = {}
     if args.optimize:
@@ -482,7 +505,7 @@ def _run_design(args):
         if args.assay:
             from .assay import Assay
             assay = Assay.read(args.assay)
-        opt = optimal_dorfman(args.prevalence, assay, args.max_pool_size)
+        opt = optimal_dorfman(args.prevalence, assay, max_pool_size=args.max_pool_size)
         summary["optimum"] = opt.to_dict()
         summary["optimum"]["assay"] = assay.describe() if assay else "error-free"
         if not args.json:
@@ -586,11 +609,10 @@ def _add_simulate(sub):
 
 
 def _run_simulate(args):
-    from .design.base import check_count
     from .io import write_frame
-    from .run import check_prevalence
-    from .simulate import simulate, sweep
-    from .simulate.protocols import accepted_options, make_protocol
+    from .validation import check_count, check_open_probability
+    from .simulation import simulate, sweep
+    from .simulation.protocols import accepted_options, make_protocol
     _check_outputs(args, out=args.out)
     prevs, sizes = args.prevalence, args.pool_size
     accepted = accepted_options(args.scheme)  # an unknown scheme fails here, before any work
@@ -605,18 +627,18 @@ def _run_simulate(args):
     for k in sizes or [None]:
         make_protocol(args.scheme, pool_size=k, **options)  # checks the options before any work
     for p in prevs or []:
-        check_prevalence(p)
-    check_count(args.runs, "--runs")
+        check_open_probability(p, "prevalence")
+    check_count(args.runs, "runs")
     from .design.specimens import specimens
     args.samples = specimens(args.samples)
     assay = _read_assay_or_default(args)
     progress = sys.stderr.isatty()
     if (prevs is None or len(prevs) == 1) and (sizes is None or len(sizes) == 1):
-        sim = simulate(args.scheme, args.samples, prevs[0] if prevs else None, assay,
+        sim = simulate(args.scheme, args.samples, prevalence=prevs[0] if prevs else None, assay=assay,
                        runs=args.runs, seed=args.seed, progress=progress,
                        pool_size=sizes[0] if sizes else None, **options)
         if args.out:
-            from .simulate.simulator import Sweep
+            from .simulation.simulator import Sweep
             write_frame(Sweep([sim]).table, args.out)
         if args.json:
             print(json.dumps(_json_ready({**sim.to_dict(), "audit": _audit(args).to_dict()}),
@@ -624,8 +646,9 @@ def _run_simulate(args):
         else:
             _print_simulation(sim, sim.characteristics.table())
     else:
-        result = sweep(args.scheme, args.samples, prevs, sizes if sizes and len(sizes) > 1
-                       else None, assay, runs=args.runs, seed=args.seed, progress=progress,
+        result = sweep(args.scheme, args.samples, prevalences=prevs,
+                       pool_sizes=sizes if sizes and len(sizes) > 1 else None, assay=assay,
+                       runs=args.runs, seed=args.seed, progress=progress,
                        **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}), **options)
         table = result.table
         if args.out:
@@ -778,8 +801,8 @@ def _add_calibrate(sub):
 
 
 def _run_calibrate_ct(args, table):
-    """A validation file with Cts: fit the [ct] load model (bayespool.calibrate.ct_fit)."""
-    from .calibrate.ct_fit import calibrate_ct
+    """A validation file with Cts: fit the [ct] load model (bayespool.calibration.ct_fit)."""
+    from .calibration.ct_fit import calibrate_ct
     result = calibrate_ct(table, cutoff=args.ct_cutoff)
     result.assay.write(args.out)
     if args.json:
@@ -795,9 +818,9 @@ def _run_calibrate_ct(args, table):
 
 
 def _run_calibrate(args):
-    from .calibrate import calibrate_runs, calibrate_validation
-    from .calibrate.plot import figure, plot_paths, write_plots
-    from .calibrate.validation import ValidationData
+    from .calibration import calibrate_runs, calibrate_validation
+    from .calibration.plot import figure, plot_paths, write_plots
+    from .calibration.validation import ValidationData
     from .run import Run
     if args.validation and (args.layout or args.readouts or args.samples):
         raise InputError("give either --validation or --layout/--readouts, not both")
@@ -864,7 +887,7 @@ def _run_calibrate(args):
 # ---- plan
 def _add_plan(sub):
     from .defaults import METHODS
-    from .plan import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
+    from .planning import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
     p = sub.add_parser("plan", help="the next most informative pools for the undecided samples",
                        description="Choose the next batch of pools by expected information gain "
                        "about the undecided samples, given the readouts so far. An empty layout "
@@ -900,9 +923,9 @@ def _add_plan(sub):
 
 
 def _run_plan(args):
-    from .decode import decode
+    from .decoders import decode
     from .io import write_frame
-    from .plan import plan
+    from .planning import plan
     report = args.report
     _check_outputs(args, out=args.out, report=report, worklist=args.worklist)
     if args.worklist and not args.samples:
@@ -914,7 +937,7 @@ def _run_plan(args):
                          args.layout)
     post = decode(run, assay, method=args.method, negative_below=args.negative_below,
                   positive_above=args.positive_above, seed=args.seed)
-    result = plan(run, assay, post, tests=args.tests, max_pool_size=args.max_pool_size,
+    result = plan(run, assay, posterior=post, tests=args.tests, max_pool_size=args.max_pool_size,
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked)
     frame = result.to_frame()
@@ -958,6 +981,197 @@ def _run_plan(args):
     return 0
 
 
+# ---- prevalence
+def _pair(text: str) -> tuple[float, float]:
+    values = _float_list(text)
+    if len(values) != 2:
+        raise argparse.ArgumentTypeError(f"expected two numbers A,B, got {text!r}")
+    return values[0], values[1]
+
+
+def _names(text: str) -> list[str]:
+    return [c.strip() for c in text.split(",") if c.strip()]
+
+
+def _with_flags(exc: InputError, flags: dict) -> InputError:
+    """A library error that begins with a Python parameter's name, reworded with the flag."""
+    for name, flag in flags.items():
+        if exc.message.startswith((name + " ", name + ":")):
+            return InputError(flag + exc.message[len(name):], exc.file, exc.line, exc.column)
+    return exc
+
+
+def _add_prevalence(sub):
+    from .defaults import PREVALENCE_INTERVALS as INTERVALS
+    p = sub.add_parser("prevalence", help="prevalence by group from pooled readouts (surveillance)",
+                       description="Estimate the prevalence (for example an infection rate per "
+                       "1000) by group from pools of any sizes, with an interval, the "
+                       "bias-corrected estimate and the minimum infection rate; without --assay "
+                       "the test is taken as perfect. Estimates describe the data and the assay "
+                       "model given. " + CAUTION)
+    src = p.add_argument_group("data (one of)")
+    src.add_argument("--pools", metavar="CSV", help="pool,size,result[,group columns]: one row "
+                     "per readout; several rows of one pool are replicates")
+    src.add_argument("--layout", metavar="CSV", help="a run's pool,sample memberships (sizes)")
+    src.add_argument("--readouts", metavar="CSV", help="the run's pool,result readouts")
+    src.add_argument("--samples", metavar="CSV", help="the run's samples (group columns)")
+    p.add_argument("--assay", metavar="TOML", help="assay model: Se(k, d) and Sp enter the "
+                   "likelihood (default: a perfect test, as the classic estimators assume)")
+    p.add_argument("--by", type=_names, default=[], metavar="COLS",
+                   help="grouping columns, comma-separated (e.g. site,week)")
+    p.add_argument("--interval", choices=INTERVALS, default="skew-score",
+                   help="interval method (default: %(default)s, the skewness-corrected score "
+                   "interval; exact needs equal pool sizes)")
+    p.add_argument("--level", type=_probability, default=0.95, metavar="L",
+                   help="confidence level (default: %(default)s)")
+    p.add_argument("--per", type=_probability, default=1.0, metavar="N",
+                   help="estimates per N specimens, e.g. 1000 (default: %(default)s)")
+    p.add_argument("--prior", type=_pair, default=(1.0, 1.0), metavar="A,B",
+                   help="Beta(A, B) prior for --interval bayes (default: 1,1)")
+    p.add_argument("--compare", type=_names, default=None, metavar="A,B",
+                   help="estimate the difference between groups A and B (automatic when --by "
+                   "names one column with exactly two values)")
+    p.add_argument("--out", metavar="CSV", help="write the estimates table")
+    p.add_argument("--report", metavar="HTML", help="write an offline HTML report")
+    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    return p
+
+
+PREVALENCE_FLAGS = {"level": "--level", "per": "--per", "prior": "--prior",
+                    "compare": "--compare", "interval": "--interval", "by": "--by"}
+
+
+def _run_prevalence(args):
+    from .io import write_frame
+    from .surveillance import estimate_prevalence, pools_from_run, read_pools
+    if args.pools and (args.layout or args.readouts or args.samples):
+        raise InputError("give either --pools or --layout/--readouts, not both")
+    if not args.pools and not (args.layout and args.readouts):
+        raise InputError("give --pools, or --layout and --readouts of a run")
+    _check_outputs(args, out=args.out, report=args.report)
+    inputs = [args.pools, args.layout, args.readouts, args.samples, args.assay]
+    assay = None
+    if args.assay:
+        from .assay import Assay
+        assay = Assay.read(args.assay)
+    if args.pools:
+        data = read_pools(args.pools)
+    else:
+        from .run import Run
+        data = pools_from_run(Run.read(args.layout, args.readouts, args.samples))
+    try:
+        result = estimate_prevalence(data, assay, by=args.by, interval=args.interval,
+                                     level=args.level, per=args.per, prior=args.prior,
+                                     compare=args.compare)
+    except InputError as exc:
+        raise _with_flags(exc, PREVALENCE_FLAGS) from None
+    if args.out:
+        write_frame(result.to_frame().reset_index(), args.out)
+    audit = _audit(args) if args.report or args.json else None
+    if args.report:
+        from .report import write_report
+        write_report(args.report, prevalence=result, title="bayespool prevalence report",
+                     notes=[f"input: {v}" for v in inputs if v], audit=audit)
+    if args.json:
+        summary = result.summary()
+        summary["audit"] = audit.to_dict()
+        summary.update({k: v for k, v in (("out", args.out), ("report", args.report)) if v})
+        print(json.dumps(summary, indent=2))
+    else:
+        print(result)
+        written = [x for x in (args.out, args.report) if x]
+        if written:
+            print(f"wrote {' and '.join(written)}")
+        print(CAUTION)
+    return 0
+
+
+# ---- regress
+def _add_regress(sub):
+    from .defaults import REGRESSION_LINKS
+    p = sub.add_parser("regress", help="individual risk on covariates from pooled readouts "
+                       "(group testing regression); fitted risks as priors",
+                       description="Fit each specimen's risk on its covariates (columns of the "
+                       "samples file) from pooled readouts of any layout, by maximum likelihood "
+                       "on the exact marginal likelihood of the readouts (EM over the latent "
+                       "statuses), or Monte Carlo EM with the Gibbs sampler for large linked "
+                       "groups. Without --assay the test is taken as perfect. Estimates describe "
+                       "the data and the assay model given. " + CAUTION)
+    p.add_argument("--layout", required=True, metavar="CSV", help="pool,sample memberships")
+    p.add_argument("--readouts", required=True, metavar="CSV", help="pool,result readouts "
+                   "(individual follow-up tests are pools of one)")
+    p.add_argument("--samples", required=True, metavar="CSV",
+                   help="sample plus the covariate columns the formula uses")
+    p.add_argument("--assay", metavar="TOML", help="assay model (default: a perfect test)")
+    p.add_argument("--formula", required=True, metavar="F",
+                   help="covariates in formula syntax, e.g. \"age + C(site)\"")
+    p.add_argument("--link", choices=REGRESSION_LINKS, default="logit",
+                   help="link of risk to covariates (default: %(default)s)")
+    p.add_argument("--method", choices=("auto", "exact", "gibbs"), default="auto",
+                   help="E-step: exact enumeration of linked groups, or the Gibbs sampler "
+                   "(default: %(default)s, exact when every linked group has at most 22 samples)")
+    p.add_argument("--level", type=_probability, default=0.95, metavar="L",
+                   help="level of the coefficient intervals (default: %(default)s)")
+    p.add_argument("--seed", type=int, default=None, metavar="N",
+                   help="random seed of the Gibbs sampler (reproducible fits)")
+    p.add_argument("--out", metavar="CSV", help="write the coefficients: "
+                   "term,estimate,std_error,lower,upper")
+    p.add_argument("--priors", metavar="CSV", help="write the samples file with a prior column "
+                   "from the fitted risks (for decode, plan and design)")
+    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    return p
+
+
+REGRESS_FLAGS = {"formula": "--formula", "link": "--link", "method": "--method",
+                 "level": "--level", "max_iter": "--max-iter"}
+
+
+def _run_regress(args):
+    from .io import write_frame
+    from .run import Run
+    from .surveillance.regression import fit_regression
+    _check_outputs(args, out=args.out, priors=args.priors)
+    assay = None
+    if args.assay:
+        from .assay import Assay
+        assay = Assay.read(args.assay)
+    run = Run.read(args.layout, args.readouts, args.samples)
+    run.sources["assay"] = args.assay
+    if assay is None:
+        from .assay import PERFECT_ASSAY
+        assay = PERFECT_ASSAY
+    try:
+        fit = fit_regression(run, assay, formula=args.formula, link=args.link,
+                             method=args.method, level=args.level, seed=args.seed)
+    except InputError as exc:
+        if isinstance(exc, ImpossibleEvidenceError) and not args.assay:
+            raise InputError(exc.message + " (no --assay was given, so the test is taken as "
+                             "perfect; give the assay file)", exc.file, exc.line,
+                             exc.column) from None
+        raise _with_flags(exc, REGRESS_FLAGS) from None
+    if args.out:
+        write_frame(fit.coefficients(), args.out)
+    if args.priors:
+        write_frame(fit.priors_frame(), args.priors)
+    if not args.assay:
+        _note(args, "no --assay given: the test is taken as perfect (Se = Sp = 1)")
+    for n in fit.notes:
+        _note(args, n)
+    if args.json:
+        summary = fit.summary()
+        summary["audit"] = _audit(args).to_dict()
+        summary["assay"] = assay.describe() if args.assay else "perfect (Se = Sp = 1)"
+        summary.update({k: v for k, v in (("out", args.out), ("priors", args.priors)) if v})
+        print(json.dumps(summary, indent=2))
+    else:
+        print(fit)
+        written = [x for x in (args.out, args.priors) if x]
+        if written:
+            print(f"wrote {' and '.join(written)}")
+        print(CAUTION)
+    return 0
+
+
 COMMANDS = {
     "assay": (_add_assay, _run_assay),
     "decode": (_add_decode, _run_decode),
@@ -966,6 +1180,8 @@ COMMANDS = {
     "simulate": (_add_simulate, _run_simulate),
     "calibrate": (_add_calibrate, _run_calibrate),
     "plan": (_add_plan, _run_plan),
+    "prevalence": (_add_prevalence, _run_prevalence),
+    "regress": (_add_regress, _run_regress),
 }
 
 
@@ -997,7 +1213,7 @@ def main(argv=None) -> int:
             print(note, file=sys.stderr)
         return code
     except InputError as exc:
-        print(f"bayespool {args.command}: error: {exc}", file=sys.stderr)
+        print(f"bayespool {args.command}: error: {exc.renamed(flag)}", file=sys.stderr)
         return 2
     except OSError as exc:
         name = getattr(exc, "filename", None)

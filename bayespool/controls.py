@@ -277,7 +277,7 @@ def read_run(layout, readouts=None, samples=None, controls=None, *, prevalence=N
     if controls is not None:
         ctl = pd.concat([ctl, read_controls(controls)], ignore_index=True)
     if not len(ctl):
-        run = Run.read(layout, readouts, samples, prevalence, result_words=result_words)
+        run = Run.read(layout, readouts, samples, prevalence=prevalence, result_words=result_words)
         return run, None
     if readouts is None:
         raise InputError("controls are checked against readouts: give the readouts file")

@@ -8,7 +8,7 @@ of the product of the replicates' factors, not a product of per-readout probabil
 
 That integral is exact for a pool on its own; it treats the Cts of the d positives as drawn afresh
 for every pool, so a decoder that multiplies such vectors across pools (belief propagation, the
-binary enumerator) ignores that a specimen's Ct is shared by its pools. :mod:`bayespool.decode.ct_exact`
+binary enumerator) ignores that a specimen's Ct is shared by its pools. :mod:`bayespool.decoders.ct_exact`
 integrates the shared Cts jointly.
 """
 from __future__ import annotations

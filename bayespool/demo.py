@@ -13,8 +13,8 @@ import numpy as np
 import pandas as pd
 
 from .assay import Assay, DilutionSensitivity
-from .decode import decode
-from .decode.posterior import Posterior
+from .decoders import decode
+from .decoders.posterior import Posterior
 from .io import write_frame
 from .run import Run
 
@@ -95,10 +95,10 @@ def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> De
     3. The planner picks the next tests for the specimens left inconclusive.
     4. One offline report shows the run, the calls, the plan and the calibration.
     """
-    from .calibrate import calibrate_validation
-    from .calibrate.plot import write_plots
-    from .calibrate.validation import ValidationData
-    from .plan import plan
+    from .calibration import calibrate_validation
+    from .calibration.plot import write_plots
+    from .calibration.validation import ValidationData
+    from .planning import plan
     from .report import write_report
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -121,7 +121,7 @@ def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> De
     assay = Assay.read(files["assay"])
     posterior = decode(run, assay, method="auto")
     write_frame(posterior.to_frame(), files["posterior"])
-    next_tests = plan(run, assay, posterior, tests=DEMO_NEXT_TESTS, seed=seed)
+    next_tests = plan(run, assay, posterior=posterior, tests=DEMO_NEXT_TESTS, seed=seed)
     write_frame(next_tests.to_frame(), files["next_pools"])
     write_report(files["report"], run=run, assay=assay, posterior=posterior,
                  plan=next_tests.to_frame(), calibration=calibration,

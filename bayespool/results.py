@@ -70,7 +70,7 @@ def parse_results(table, column: str = "result", words: dict | None = None) -> n
                           "negative, pos/neg, 1/0, +/-, detected/not detected, reactive/"
                           "non-reactive; invalid and inconclusive are skipped); map a "
                           "laboratory's own word with the assay file's [results] table or "
-                          "--result-word WORD=positive", r, column)
+                          "`result_words` (WORD=positive)", r, column)
     return codes.to_numpy(dtype=np.int64)
 
 

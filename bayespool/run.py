@@ -13,21 +13,10 @@ import numpy as np
 import pandas as pd
 
 from .defaults import PREVALENCE
-from .errors import InputError
 from .io import CodedTable, FrameTable, Table, read_id_table, read_table
 from .results import parse_results, skipped_note
+from .validation import check_open_probability
 from .wells import check_wells
-
-def check_prevalence(value, name: str = "--prevalence") -> float:
-    """A prevalence strictly between 0 and 1 (NaN and infinities refused)."""
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{name} must be a number strictly between 0 and 1, got {value!r}") from None
-    if not (0.0 < v < 1.0):
-        raise InputError(f"{name} must be strictly between 0 and 1, got {value!r}")
-    return v
-
 
 _COUNTING_SORT_FROM = 1 << 16  # pairs; below this a NumPy sort is as fast and needs no numba
 
@@ -148,7 +137,7 @@ class Run(PoolIncidence):
                    pool_ptr, pool_members, sample_ptr, sample_pools, npos, nneg)
 
     @classmethod
-    def read(cls, layout, readouts=None, samples=None, prevalence: float = PREVALENCE, *,
+    def read(cls, layout, readouts=None, samples=None, *, prevalence: float = PREVALENCE,
              result_words: dict | None = None) -> "Run":
         """Read and validate the layout, readouts and samples files (interface.md).
 
@@ -178,7 +167,7 @@ class Run(PoolIncidence):
     @classmethod
     def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence, *,
                     words: dict | None = None) -> "Run":
-        prevalence = check_prevalence(prevalence)
+        prevalence = check_open_probability(prevalence, "prevalence")
         # IDs are factorised once (a large plain file comes already coded); every later check
         # works on the integer codes
         if isinstance(lay, CodedTable):
@@ -302,3 +291,34 @@ class Run(PoolIncidence):
         """The layout as a DataFrame (pool, sample), one row per membership."""
         owner = np.repeat(np.arange(self.n_pools), self.pool_size)
         return pd.DataFrame({"pool": self.pool_ids[owner], "sample": self.sample_ids[self.pool_members]})
+
+
+def read_run(layout, readouts=None, samples=None, *, prevalence: float = PREVALENCE,
+             result_words: dict | None = None) -> Run:
+    """Read a run from its files: the layout, the readouts and the optional samples file.
+
+    Parameters
+    ----------
+    layout : str or path-like
+        ``pool,sample`` memberships, one row each.
+    readouts : str or path-like, optional
+        ``pool,result[,ct]`` readouts; several rows of one pool are replicates. None (or a file
+        with a header only) means nothing is read yet.
+    samples : str or path-like, optional
+        ``sample[,prior,plate,well,...]``; specimens of the layout missing here take
+        ``prevalence``.
+    prevalence : float, keyword-only
+        Prior probability of specimens without a prior, strictly between 0 and 1.
+    result_words : dict, optional
+        A laboratory's own result words (word -> positive, negative or skip).
+
+    Returns
+    -------
+    Run
+
+    Raises
+    ------
+    InputError
+        A bad file (naming file, line and column) or a bad ``prevalence``.
+    """
+    return Run.read(layout, readouts, samples, prevalence=prevalence, result_words=result_words)

@@ -25,7 +25,7 @@ import numpy as np
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
 
 from bayespool.assay import Assay, ConstantSensitivity  # noqa: E402
-from bayespool.decode.gibbs import GibbsSampler, SingleSiteMove, ess  # noqa: E402
+from bayespool.decoders.gibbs import GibbsSampler, SingleSiteMove, ess  # noqa: E402
 from bayespool.run import Run  # noqa: E402
 
 ASSAY = Assay(0.99, ConstantSensitivity(0.95))

@@ -24,13 +24,13 @@ import pandas as pd
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from bayespool.assay import Assay, ConstantSensitivity  # noqa: E402
-from bayespool.decode import decode  # noqa: E402
-from bayespool.decode.graph import components  # noqa: E402
-from bayespool.plan import plan  # noqa: E402
-from bayespool.plan.candidates import generate  # noqa: E402
-from bayespool.plan.draws import posterior_draws  # noqa: E402
-from bayespool.plan.greedy import select_batch  # noqa: E402
-from bayespool.plan.information import readout_table  # noqa: E402
+from bayespool.decoders import decode  # noqa: E402
+from bayespool.decoders.graph import components  # noqa: E402
+from bayespool.planning import plan  # noqa: E402
+from bayespool.planning.candidates import generate  # noqa: E402
+from bayespool.planning.draws import posterior_draws  # noqa: E402
+from bayespool.planning.greedy import select_batch  # noqa: E402
+from bayespool.planning.information import readout_table  # noqa: E402
 from bayespool.run import Run  # noqa: E402
 
 GOAL = 10.0
@@ -93,7 +93,7 @@ def main(argv=None):
         post = decode(run, ASSAY)
         t_decode = time.perf_counter() - t
         t = time.perf_counter()
-        result = plan(run, ASSAY, post, tests=args.tests, n_draws=args.draws, seed=args.seed)
+        result = plan(run, ASSAY, posterior=post, tests=args.tests, n_draws=args.draws, seed=args.seed)
         total = time.perf_counter() - t
         parts, n_cand, n_und = breakdown(run, args.tests, args.draws, args.seed)
         detail = ", ".join(f"{k} {v:.2f}" for k, v in parts.items() if k != "decode")

@@ -17,7 +17,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # this tree's bayespool
 
 from bayespool.assay import Assay, DilutionSensitivity  # noqa: E402
-from bayespool.simulate import simulate  # noqa: E402
+from bayespool.simulation import simulate  # noqa: E402
 
 GOAL_SECONDS = 10.0
 
@@ -58,17 +58,17 @@ def main():
     args = ap.parse_args()
     assay = Assay(0.99, DilutionSensitivity(se_max=0.97, r50=40.0, slope=1.2))
     n, runs, k, p = args.samples, args.runs, args.pool_size, args.prevalence
-    simulate("dorfman", 50, p, assay, runs=2, seed=0, pool_size=k)  # warm-up (imports)
+    simulate("dorfman", 50, prevalence=p, assay=assay, runs=2, seed=0, pool_size=k)  # warm-up (imports)
 
-    t_batch, sim = timed(lambda: simulate("dorfman", n, p, assay, runs=runs, seed=1, pool_size=k))
-    t_run, sim_run = timed(lambda: simulate("dorfman", n, p, assay, runs=runs, seed=1,
+    t_batch, sim = timed(lambda: simulate("dorfman", n, prevalence=p, assay=assay, runs=runs, seed=1, pool_size=k))
+    t_run, sim_run = timed(lambda: simulate("dorfman", n, prevalence=p, assay=assay, runs=runs, seed=1,
                                             pool_size=k, batch=False))
     few = max(1, runs // 50)
     rng = np.random.default_rng(2)
     truths = rng.random((few, n)) < p
     t_loop, _ = timed(lambda: [python_loop_dorfman(t, k, assay, rng) for t in truths])
     t_loop *= runs / few
-    t_array, _ = timed(lambda: simulate("array", n, p, assay, runs=runs, seed=1))
+    t_array, _ = timed(lambda: simulate("array", n, prevalence=p, assay=assay, runs=runs, seed=1))
 
     print(f"Dorfman, {runs} runs of {n} specimens, pools of {k}, prevalence {p:g}, "
           f"{assay.describe()}")

@@ -21,7 +21,7 @@ import pandas as pd
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from bayespool.assay import Assay, ConstantSensitivity  # noqa: E402
-from bayespool.decode import decode  # noqa: E402
+from bayespool.decoders import decode  # noqa: E402
 from bayespool.design import make_design  # noqa: E402
 from bayespool.run import Run  # noqa: E402
 

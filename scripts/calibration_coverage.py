@@ -21,8 +21,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity  # noqa: E402
-from bayespool.calibrate import calibrate_runs, calibrate_validation  # noqa: E402
-from bayespool.calibrate.validation import ValidationData  # noqa: E402
+from bayespool.calibration import calibrate_runs, calibrate_validation  # noqa: E402
+from bayespool.calibration.validation import ValidationData  # noqa: E402
 
 DESIGNS = {
     "dilution, 30 readouts x 6 dilutions": (

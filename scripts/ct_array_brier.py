@@ -21,8 +21,8 @@ import pandas as pd
 
 from bayespool.assay import Assay, TableSensitivity, sensitivity_table
 from bayespool.ct_evidence import PoolCtStats
-from bayespool.decode import decode
-from bayespool.decode.ct_gibbs import sample_ct
+from bayespool.decoders import decode
+from bayespool.decoders.ct_gibbs import sample_ct
 from bayespool.run import Run
 
 ASSAY = {"specificity": 0.995, "ct": {

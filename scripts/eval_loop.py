@@ -21,8 +21,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity  # noqa: E402
-from bayespool.simulate.protocol import Tester  # noqa: E402
-from bayespool.simulate.protocols.bayes import BayesianLoop  # noqa: E402
+from bayespool.simulation.protocol import Tester  # noqa: E402
+from bayespool.simulation.protocols.bayes import BayesianLoop  # noqa: E402
 
 
 def kim_dorfman(p: float, se: float, sp: float, k: int) -> dict:

@@ -19,7 +19,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity  # noqa: E402
-from bayespool.decode import decode  # noqa: E402
+from bayespool.decoders import decode  # noqa: E402
 from bayespool.run import Run  # noqa: E402
 from tests.test_gibbs_tails import BANDS, by_sample, dorfman_groups, random_groups  # noqa: E402
 

@@ -7,7 +7,7 @@ import numpy as np
 import pandas as pd
 
 from bayespool.assay import Assay, ConstantSensitivity
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.run import Run
 
 ASSAY = Assay(0.99, ConstantSensitivity(0.95))

@@ -13,8 +13,8 @@ import pytest
 from scipy.special import logsumexp
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity, TableSensitivity
-from bayespool.decode import decode
-from bayespool.decode.bp import pool_messages
+from bayespool.decoders import decode
+from bayespool.decoders.bp import pool_messages
 from bayespool.errors import ImpossibleEvidenceError
 from bayespool.run import Run
 

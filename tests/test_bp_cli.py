@@ -105,7 +105,7 @@ def test_help_imports_no_heavy_module_and_kernels_are_cached():
     from numba.core.dispatcher import Dispatcher
 
     from bayespool import csvscan, incidence
-    from bayespool.decode import bp
+    from bayespool.decoders import bp
     kernels = [v for m in (bp, csvscan, incidence) for v in vars(m).values()
                if isinstance(v, Dispatcher)]
     assert len(kernels) >= 15

@@ -11,9 +11,9 @@ import types
 import numpy as np
 import pytest
 
-from bayespool.decode import decode
-from bayespool.decode.exact import decode_exact
-from bayespool.decode.gibbs.decode import Fallback  # the result type the real sampler returns
+from bayespool.decoders import decode
+from bayespool.decoders.exact import decode_exact
+from bayespool.decoders.gibbs.decode import Fallback  # the result type the real sampler returns
 
 from .test_bp import ASSAYS, loopy_run
 
@@ -32,7 +32,7 @@ def sampler_module(monkeypatch):
                        np.ones(len(specimens)), np.full(len(specimens), 400.0), dist,
                        f"{why}: stand-in sampler", {"gibbs": {"chains": 4, "converged": True}})
 
-    name = "bayespool.decode.gibbs"
+    name = "bayespool.decoders.gibbs"
     module = types.ModuleType(name)
     module.__spec__ = importlib.machinery.ModuleSpec(name, None)
     module.fallback = fallback
@@ -71,7 +71,7 @@ def test_no_fallback_for_an_explicit_bp_or_a_converged_run(sampler_module):
 
 
 def test_without_the_sampler_there_is_no_fallback_and_a_loud_warning(monkeypatch):
-    import bayespool.decode as decode_module
+    import bayespool.decoders as decode_module
     monkeypatch.setattr(decode_module.importlib.util, "find_spec", lambda name: None)
     assay = ASSAYS["constant"]
     run = loopy_run(np.random.default_rng(2), assay, n=16, k=4, prevalence=0.2)

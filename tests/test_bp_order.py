@@ -10,7 +10,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from bayespool.assay import Assay, DilutionSensitivity
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.run import Run
 
 ASSAY = Assay(0.97, DilutionSensitivity(0.98, 5.0, 1.3))

@@ -15,9 +15,9 @@ from scipy import integrate, stats
 
 from bayespool.assay import Assay, ConstantSensitivity
 from bayespool.assay_spread import integrate as integrate_assay
-from bayespool.calibrate import calibrate_validation
-from bayespool.calibrate.validation import ValidationData
-from bayespool.decode import decode
+from bayespool.calibration import calibrate_validation
+from bayespool.calibration.validation import ValidationData
+from bayespool.decoders import decode
 from bayespool.errors import InputError
 from bayespool.run import Run
 
@@ -100,7 +100,7 @@ def test_se_max_on_the_edge_is_written_inside():
     se_max = cal.assay.sensitivity.se_max
     assert 0.95 < se_max < 1.0
     # at the written se_max the profile deviance is the median of chi-square(1)
-    from bayespool.calibrate.fit import fit_sensitivity
+    from bayespool.calibration.fit import fit_sensitivity
     cells = data.sensitivity_cells()
     free = fit_sensitivity(cells, "dilution")
     held = fit_sensitivity(cells, "dilution", {"se_max": se_max})

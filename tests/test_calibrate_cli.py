@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 
 from bayespool.assay import Assay, DilutionSensitivity
-from bayespool.calibrate import calibrate_validation
-from bayespool.calibrate.validation import ValidationData
+from bayespool.calibration import calibrate_validation
+from bayespool.calibration.validation import ValidationData
 
 from .conftest import write_csv
 from .test_calibrate_latent import dorfman_runs

@@ -8,8 +8,8 @@ a 95% coverage is 1.3 points, so 92% to 98% is a band of more than two standard 
 import numpy as np
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.calibrate import calibrate_validation
-from bayespool.calibrate.validation import ValidationData
+from bayespool.calibration import calibrate_validation
+from bayespool.calibration.validation import ValidationData
 
 N_SETS = 300
 

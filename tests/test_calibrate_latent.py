@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.calibrate import calibrate_runs
+from bayespool.calibration import calibrate_runs
 from bayespool.run import Run
 
 
@@ -162,13 +162,13 @@ def test_latent_assay_file_round_trips(tmp_path):
 
 def test_pools_with_follow_up_match_the_exact_enumeration():
     # the closed form for a pool with individual follow-up (evidence.py) against the exact
-    # decoder's enumeration of the same components (bayespool.decode.exact, itself checked
+    # decoder's enumeration of the same components (bayespool.decoders.exact, itself checked
     # against pgmpy in test_exact_vs_pgmpy.py)
     import dataclasses
 
-    from bayespool.calibrate.evidence import Evidence
-    from bayespool.decode.exact import decode_exact
-    from bayespool.decode.graph import components
+    from bayespool.calibration.evidence import Evidence
+    from bayespool.decoders.exact import decode_exact
+    from bayespool.decoders.graph import components
     assay = Assay(0.97, DilutionSensitivity(0.95, 12.0, 1.3))
     rng = np.random.default_rng(12)
     layout, readouts, _ = dorfman_runs(rng, 120, [3, 6, 10], 0.2, assay)

@@ -18,9 +18,9 @@ from scipy.special import logit, xlogy
 from scipy.stats import chi2
 
 from bayespool.assay import Assay, DilutionSensitivity
-from bayespool.calibrate import calibrate_validation
-from bayespool.calibrate.fit import fit_sensitivity
-from bayespool.calibrate.validation import ValidationData
+from bayespool.calibration import calibrate_validation
+from bayespool.calibration.fit import fit_sensitivity
+from bayespool.calibration.validation import ValidationData
 
 with warnings.catch_warnings():
     warnings.simplefilter("ignore")

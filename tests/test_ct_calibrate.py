@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from bayespool.calibrate.ct_fit import fit_dilution, fit_mixture
+from bayespool.calibration.ct_fit import fit_dilution, fit_mixture
 
 
 def simulate(rng, n, s=1.0, sd=0.5, dm=0.97, cutoff=40.0, sizes=(1, 4, 8, 16, 32)):

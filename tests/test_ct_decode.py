@@ -14,7 +14,7 @@ from scipy import stats
 from scipy.special import logsumexp
 
 from bayespool.assay import Assay
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.run import Run
 
 CT = {"specificity": 0.99, "ct": {

@@ -218,8 +218,8 @@ def test_binary_consumers_use_the_implied_sensitivity(ct_assay):
     tab = sensitivity_table(ct_assay, list(range(1, 21)))
     table = Assay(ct_assay.specificity, TableSensitivity(tuple(
         (int(r.pool_size), int(r.positives), float(r.value)) for r in tab.itertuples())))
-    a = optimal_dorfman(0.02, ct_assay, 20)
-    b = optimal_dorfman(0.02, table, 20)
+    a = optimal_dorfman(0.02, ct_assay, max_pool_size=20)
+    b = optimal_dorfman(0.02, table, max_pool_size=20)
     pd.testing.assert_frame_equal(a.table, b.table, rtol=1e-12)
     # with one lone positive the pooled-then-individual sensitivity is Se(k, 1) * Se(1, 1)
     # (Kim et al. 2007, pooled sensitivity Se^2 when Se is constant)

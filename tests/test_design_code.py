@@ -137,7 +137,7 @@ def test_words_distance_matches_brute_force():
 def test_exact_decoder_names_the_positive_despite_a_wrong_readout():
     # The Bayesian decoder on the same layout (a near-perfect assay, prevalence 1%): with one
     # positive and one flipped readout the true specimen has by far the highest probability.
-    from bayespool.decode import decode
+    from bayespool.decoders import decode
     from bayespool.run import Run
     assay = Assay(0.99, ConstantSensitivity(0.99))
     design = code_design(16)

@@ -107,7 +107,7 @@ def test_errors():
     samples.loc[0, "well"] = ""
     with pytest.raises(InputError, match="well"):
         array_design(samples)
-    with pytest.raises(InputError, match="--fill"):
+    with pytest.raises(InputError, match="fill"):  # --fill on the command line: test_api.py
         dorfman_design(20, pool_size=4, fill="rows")
     dup = pd.DataFrame({"sample": ["a", "b"], "plate": ["p", "p"], "well": ["A1", "a01"]})
     with pytest.raises(InputError, match="already given"):

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.errors import ImpossibleEvidenceError
 from bayespool.run import Run
 

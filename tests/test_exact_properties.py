@@ -5,7 +5,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.run import Run
 
 SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -96,8 +96,8 @@ def test_two_replicates_equal_one_factor_with_the_product_likelihood(case):
     ll = ll.copy()
     with np.errstate(divide="ignore"):
         ll[ptr[t]:ptr[t + 1]] += np.log(one)
-    from bayespool.decode.exact import decode_exact
-    from bayespool.decode.graph import components
+    from bayespool.decoders.exact import decode_exact
+    from bayespool.decoders.graph import components
     prob, *_ = decode_exact(run, ptr, ll, components(run))
     for i, s in enumerate(run.sample_ids):
         assert abs(prob[i] - p2[s]) < 1e-12

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 
 from bayespool.assay import Assay, TableSensitivity
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.run import Run
 
 from .conftest import random_design

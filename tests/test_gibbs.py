@@ -13,8 +13,8 @@ import pytest
 from scipy.special import betaln
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.decode import decode
-from bayespool.decode.gibbs import GibbsSampler, SingleSiteMove, run_sampler
+from bayespool.decoders import decode
+from bayespool.decoders.gibbs import GibbsSampler, SingleSiteMove, run_sampler
 from bayespool.errors import ImpossibleEvidenceError
 from bayespool.run import Run
 
@@ -48,12 +48,12 @@ ASSAYS = [Assay(0.98, ConstantSensitivity(0.93)),
 
 @pytest.mark.parametrize("seed", range(6))
 def test_marginals_match_exact_enumeration_on_loopy_designs(seed):
-    # reference: exact enumeration (bayespool.decode.exact, checked against pgmpy)
+    # reference: exact enumeration (bayespool.decoders.exact, checked against pgmpy)
     run = loopy_run(seed)
     assay = ASSAYS[seed % 2]
-    exact = decode(run, assay, "exact")
+    exact = decode(run, assay, method="exact")
     assert exact.diagnostics["largest_component"] >= 8  # genuinely loopy, linked design
-    post = decode(run, assay, "gibbs", seed=seed)
+    post = decode(run, assay, method="gibbs", seed=seed)
     err = np.abs(post.probability - exact.probability)
     assert err.mean() <= 0.01, err
     assert err.max() <= 0.04, err
@@ -68,12 +68,12 @@ def test_hard_constraints_are_exact():
     run = loopy_run(11, n=12, prevalence=0.1)
     for assay in (Assay(1.0, ConstantSensitivity(0.9)), Assay(0.97, ConstantSensitivity(1.0))):
         try:
-            exact = decode(run, assay, "exact")
+            exact = decode(run, assay, method="exact")
         except ImpossibleEvidenceError:
             with pytest.raises(ImpossibleEvidenceError):
-                decode(run, assay, "gibbs", seed=1)
+                decode(run, assay, method="gibbs", seed=1)
             continue
-        post = decode(run, assay, "gibbs", seed=1)
+        post = decode(run, assay, method="gibbs", seed=1)
         err = np.abs(post.probability - exact.probability)
         assert err.max() <= 0.04 and err.mean() <= 0.01
 
@@ -85,7 +85,7 @@ def test_impossible_readouts_raise():
                                                                   "positive"]})
     run = Run.from_frames(layout, reads, prevalence=0.1)
     with pytest.raises(ImpossibleEvidenceError):
-        decode(run, Assay(1.0, ConstantSensitivity(1.0)), "gibbs", seed=0)
+        decode(run, Assay(1.0, ConstantSensitivity(1.0)), method="gibbs", seed=0)
 
 
 def two_candidates_run():
@@ -105,10 +105,10 @@ def test_two_candidates_of_one_positive_pool_share_the_probability():
     # 1e-3); single-site updates alone stick in (1, 0) or (0, 1), as crossing passes through (1, 1)
     # (odds about the prior) or (0, 0) (odds about (1 - Sp)^2 / prior); the pool swap crosses
     run = two_candidates_run()
-    exact = decode(run, NEAR_PERFECT, "exact")
+    exact = decode(run, NEAR_PERFECT, method="exact")
     a, b = exact.probability_of("A"), exact.probability_of("B")
     assert abs(a - 0.5) < 1e-3 and abs(b - 0.5) < 1e-3
-    post = decode(run, NEAR_PERFECT, "gibbs", seed=5)
+    post = decode(run, NEAR_PERFECT, method="gibbs", seed=5)
     assert abs(post.probability_of("A") - a) <= 0.02
     assert abs(post.probability_of("B") - b) <= 0.02
     groups = post.diagnostics["ambiguity_groups"]
@@ -164,8 +164,8 @@ def test_number_of_positives_matches_exact_enumeration():
     # reference: Posterior.count_distribution of the exact decoder (convolution over components)
     run = loopy_run(3, n=14)
     assay = ASSAYS[0]
-    exact = decode(run, assay, "exact")
-    post = decode(run, assay, "gibbs", seed=9, gibbs_options={"min_sweeps": 6000})
+    exact = decode(run, assay, method="exact")
+    post = decode(run, assay, method="gibbs", seed=9, gibbs_options={"min_sweeps": 6000})
     diff = np.abs(post.count_distribution - exact.count_distribution)
     assert diff.max() <= 0.015, diff
     assert post.positives_summary()["interval_95"] == exact.positives_summary()["interval_95"]
@@ -179,7 +179,7 @@ def test_unknown_prevalence_matches_beta_binomial_enumeration():
     assay = ASSAYS[0]
     prior = (2.0, 18.0)
     ref = brute_force(run, assay, prior)
-    post = decode(run, assay, "gibbs", seed=4, gibbs_options={"prevalence_prior": "2,18"})
+    post = decode(run, assay, method="gibbs", seed=4, gibbs_options={"prevalence_prior": "2,18"})
     err = np.abs(post.probability - ref["marginals"])
     assert err.max() <= 0.04 and err.mean() <= 0.01
     prev = post.diagnostics["prevalence_posterior"]
@@ -190,9 +190,9 @@ def test_unknown_prevalence_matches_beta_binomial_enumeration():
 
 def test_seed_makes_runs_reproducible():
     run = loopy_run(2)
-    a = decode(run, ASSAYS[1], "gibbs", seed=123)
-    b = decode(run, ASSAYS[1], "gibbs", seed=123)
-    c = decode(run, ASSAYS[1], "gibbs", seed=124)
+    a = decode(run, ASSAYS[1], method="gibbs", seed=123)
+    b = decode(run, ASSAYS[1], method="gibbs", seed=123)
+    c = decode(run, ASSAYS[1], method="gibbs", seed=124)
     assert np.array_equal(a.probability, b.probability)
     assert np.array_equal(a.draws, b.draws)
     assert not np.array_equal(a.probability, c.probability)
@@ -215,8 +215,8 @@ def test_auto_falls_back_to_the_sampler_where_bp_does_not_converge():
     # reference: exact enumeration
     run = loopy_run(6)
     assay = ASSAYS[0]
-    exact = decode(run, assay, "exact")
-    post = decode(run, assay, "auto", seed=3, exact_limit=6, max_sweeps=1)
+    exact = decode(run, assay, method="exact")
+    post = decode(run, assay, method="auto", seed=3, exact_limit=6, max_sweeps=1)
     assert "gibbs" in post.method
     assert any("decoded by the Gibbs sampler" in w for w in post.warnings)
     assert (post.sample_method == "gibbs").sum() >= 7
@@ -232,7 +232,7 @@ def test_bad_options_are_input_errors():
     for opts in ({"chains": 0}, {"max_sweeps": 2}, {"prevalence_prior": "1"},
                  {"prevalence_prior": "0,3"}, {"nonsense": 1}):
         with pytest.raises(InputError):
-            decode(run, ASSAYS[0], "gibbs", seed=0, gibbs_options=opts)
+            decode(run, ASSAYS[0], method="gibbs", seed=0, gibbs_options=opts)
 
 
 def test_large_run_path_watches_only_specimens_near_a_threshold():
@@ -240,7 +240,7 @@ def test_large_run_path_watches_only_specimens_near_a_threshold():
     # reference: exact enumeration as above
     run = loopy_run(7)
     assay = ASSAYS[0]
-    exact = decode(run, assay, "exact")
+    exact = decode(run, assay, method="exact")
     lik_ptr, loglik = run.log_likelihood(assay)
     res = run_sampler(run, lik_ptr, loglik, seed=3, options={"memory_budget": 20_000,
                                                               "progress": True})
@@ -254,18 +254,18 @@ def test_large_run_path_watches_only_specimens_near_a_threshold():
 def test_unknown_prevalence_takes_auto_to_the_sampler_and_is_refused_by_exact():
     from bayespool.errors import InputError
     run = loopy_run(5, n=10)
-    post = decode(run, ASSAYS[0], "auto", seed=1, gibbs_options={"prevalence_prior": (1, 9)})
+    post = decode(run, ASSAYS[0], method="auto", seed=1, gibbs_options={"prevalence_prior": (1, 9)})
     assert post.method == "gibbs" and "prevalence_posterior" in post.diagnostics
     assert any("unknown prevalence" in w for w in post.warnings)
     with pytest.raises(InputError):
-        decode(run, ASSAYS[0], "exact", gibbs_options={"prevalence_prior": (1, 9)})
+        decode(run, ASSAYS[0], method="exact", gibbs_options={"prevalence_prior": (1, 9)})
 
 
 def test_a_single_chain_can_reach_the_ess_target():
     # split R-hat compares the chain's halves; the batch-mean buffer must be long enough for an
     # ESS of 400 from one chain
     run = loopy_run(8)
-    exact = decode(run, ASSAYS[0], "exact")
-    post = decode(run, ASSAYS[0], "gibbs", seed=2, gibbs_options={"chains": 1})
+    exact = decode(run, ASSAYS[0], method="exact")
+    post = decode(run, ASSAYS[0], method="gibbs", seed=2, gibbs_options={"chains": 1})
     assert post.diagnostics["converged"], post.diagnostics["gibbs"]["stop"]
     assert np.abs(post.probability - exact.probability).max() <= 0.04

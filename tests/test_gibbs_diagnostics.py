@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity
-from bayespool.decode.gibbs import ess, ess_mean, mcse, rhat, run_sampler
+from bayespool.decoders.gibbs import ess, ess_mean, mcse, rhat, run_sampler
 
 from .test_gibbs import loopy_run
 
@@ -66,7 +66,7 @@ def test_average_ranks_match_scipy_rankdata():
     # reference: scipy.stats.rankdata(method="average")
     from scipy.stats import rankdata
 
-    from bayespool.decode.gibbs.diagnostics import average_ranks
+    from bayespool.decoders.gibbs.diagnostics import average_ranks
     rng = np.random.default_rng(3)
     a = rng.integers(0, 5, size=(200, 7)).astype(float)
     a[:, 3] = rng.normal(size=200)
@@ -75,7 +75,7 @@ def test_average_ranks_match_scipy_rankdata():
 
 
 def test_combined_rhat_ess_equals_the_separate_functions():
-    from bayespool.decode.gibbs.diagnostics import rhat_ess
+    from bayespool.decoders.gibbs.diagnostics import rhat_ess
     x = np.random.default_rng(4).normal(size=(4, 301, 3)).cumsum(axis=1)
     r, e = rhat_ess(x)
     assert np.allclose(r, rhat(x), rtol=1e-12) and np.allclose(e, ess(x), rtol=1e-12)

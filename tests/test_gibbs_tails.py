@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.run import Run
 
 BANDS = [("below 0.01", 0.0, 0.01), ("0.01 to 0.1", 0.01, 0.1), ("0.1 to 0.9", 0.1, 0.9),

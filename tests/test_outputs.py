@@ -175,7 +175,7 @@ def test_an_output_through_a_link_replaces_the_linked_file(cli, f, umask022):
 
 def test_library_report_refuses_to_overwrite_an_input(f):
     from bayespool import Run, read_assay
-    from bayespool.decode import decode
+    from bayespool.decoders import decode
     from bayespool.errors import InputError
     from bayespool.report import write_report
     run = Run.read(f["layout"], f["readouts"], f["samples"])

@@ -10,10 +10,10 @@ import pandas as pd
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.decode import decode
-from bayespool.decode.exact import EXACT_LIMIT
-from bayespool.plan import DEFAULT_MAX_LINKED, joint_information, plan, pool_information
-from bayespool.plan.draws import posterior_draws
+from bayespool.decoders import decode
+from bayespool.decoders.exact import EXACT_LIMIT
+from bayespool.planning import DEFAULT_MAX_LINKED, joint_information, plan, pool_information
+from bayespool.planning.draws import posterior_draws
 from bayespool.run import Run
 
 from .conftest import random_design
@@ -64,7 +64,7 @@ def test_pairs_in_one_group_never_below_reported(assay):
     run = positive_pool_run(12)
     post = decode(run, assay)
     draws = posterior_draws(run, assay, post, 2000, np.random.default_rng(3))
-    result = plan(run, assay, post, tests=8, draws=draws, max_pool_size=8)
+    result = plan(run, assay, posterior=post, tests=8, draws=draws, max_pool_size=8)
     assert result.n_tests >= 3
     pools = [result.members(j) for j in range(result.n_tests)]
     info = result.information
@@ -87,8 +87,8 @@ def test_pairs_across_independent_groups_never_below_reported():
     run = read_at_random(layout, 40, 0.15, NOISY, rng)
     post = decode(run, NOISY)
     draws = posterior_draws(run, NOISY, post, 2000, np.random.default_rng(5))
-    result = plan(run, NOISY, post, tests=12, draws=draws, max_pool_size=6)
-    from bayespool.decode.graph import components
+    result = plan(run, NOISY, posterior=post, tests=12, draws=draws, max_pool_size=6)
+    from bayespool.decoders.graph import components
     label = components(run).sample_label
     pools = [result.members(j) for j in range(result.n_tests)]
     single = [pool_information(draws, m, NOISY)[1] for m in pools]
@@ -113,7 +113,7 @@ def test_limits_batch_size_pool_size_draws_and_fresh_ids(seed):
     run = read_at_random(layout, n, 0.2, NOISY, rng, samples)
     post = decode(run, NOISY)
     for tests, k, max_draws in ((5, 4, 1), (30, 8, 2), (50, 3, None)):
-        result = plan(run, NOISY, post, tests=tests, max_pool_size=k, max_draws=max_draws,
+        result = plan(run, NOISY, posterior=post, tests=tests, max_pool_size=k, max_draws=max_draws,
                       seed=seed)
         assert 0 < result.n_tests <= tests
         frame = result.to_frame()
@@ -139,14 +139,14 @@ def test_limits_batch_size_pool_size_draws_and_fresh_ids(seed):
 def test_second_batch_gets_new_stage_ids_and_linked_limit():
     run = positive_pool_run(16, extra=40)
     post = decode(run, NOISY)
-    first = plan(run, NOISY, post, tests=20, seed=1, max_linked=20)
+    first = plan(run, NOISY, posterior=post, tests=20, seed=1, max_linked=20)
     assert all(str(p).startswith("B1_") for p in first.pool_ids)
     rng = np.random.default_rng(0)
     run2 = first.extend(run, rng.random(first.n_tests) < 0.3)
     second = plan(run2, NOISY, tests=10, seed=1, max_linked=20)
     assert all(str(p).startswith("B2_") for p in second.pool_ids)
     # no linked group of the next decode exceeds max_linked
-    from bayespool.decode.graph import components
+    from bayespool.decoders.graph import components
     run3 = second.extend(run2, np.zeros(second.n_tests, dtype=bool))
     assert components(run3).sizes.max() <= 20
 
@@ -189,9 +189,10 @@ def test_decoder_draws_are_used_when_present():
 def test_bad_options_are_input_errors():
     from bayespool.errors import InputError
     run = positive_pool_run(4)
-    with pytest.raises(InputError, match="--tests"):
+    # the library names the Python parameter; the command line's flags: tests/test_api.py
+    with pytest.raises(InputError, match="tests"):
         plan(run, NOISY, tests=0)
-    with pytest.raises(InputError, match="--max-pool-size"):
+    with pytest.raises(InputError, match="max_pool_size"):
         plan(run, NOISY, tests=3, max_pool_size=0)
     with pytest.raises(InputError, match="max_draws"):
         plan(run, NOISY, tests=3, max_draws=[1, 2])
@@ -210,10 +211,10 @@ def test_tests_within_a_group_above_the_link_limit_are_allowed():
     # a read pool of 25 is one linked group above 22: tests inside it add no specimen to it
     run = positive_pool_run(25, extra=10)
     post = decode(run, NOISY, method="bp")
-    notes_plan = plan(run, NOISY, post, tests=6, seed=1)
+    notes_plan = plan(run, NOISY, posterior=post, tests=6, seed=1)
     assert notes_plan.n_tests > 0
     assert any("marginals" in n for n in notes_plan.notes)
-    from bayespool.decode.graph import components
+    from bayespool.decoders.graph import components
     comps = components(run)
     big = comps.sample_label[0]
     for j in range(notes_plan.n_tests):

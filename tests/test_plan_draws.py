@@ -12,8 +12,8 @@ import pytest
 from scipy.stats import chisquare
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.decode import decode
-from bayespool.plan.draws import posterior_draws
+from bayespool.decoders import decode
+from bayespool.planning.draws import posterior_draws
 from bayespool.run import Run
 
 LAYOUT = pd.DataFrame({"pool": ["A"] * 5 + ["B"] * 3 + ["C"] * 2 + ["D"],

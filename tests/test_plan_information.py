@@ -15,8 +15,8 @@ from scipy.stats import binom
 from scipy.stats import entropy as scipy_entropy
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
-from bayespool.plan import joint_information, pool_information
-from bayespool.plan.information import readout_table
+from bayespool.planning import joint_information, pool_information
+from bayespool.planning.information import readout_table
 
 PERFECT = Assay(1.0, ConstantSensitivity(1.0))
 NOISY = Assay(0.99, ConstantSensitivity(0.95))

@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity
-from bayespool.simulate.protocol import Tester as CohortTester
-from bayespool.simulate.protocols.bayes import BayesianLoop
+from bayespool.simulation.protocol import Tester as CohortTester
+from bayespool.simulation.protocols.bayes import BayesianLoop
 
 
 def kim_dorfman(p, se, sp, k):

@@ -13,8 +13,8 @@ import pandas as pd
 
 from bayespool.assay import Assay, ConstantSensitivity
 from bayespool.design import code_design
-from bayespool.simulate import protocol
-from bayespool.simulate.protocols import make_protocol
+from bayespool.simulation import protocol
+from bayespool.simulation.protocols import make_protocol
 
 PERFECT = Assay(1.0, ConstantSensitivity(1.0))
 
@@ -62,10 +62,10 @@ def test_tests_per_specimen_against_the_first_stage_closed_form():
     # without ambiguity the expected cost is 1/k + P(pool positive) * L / k, with P from
     # Kim et al. (2007); at prevalence 0.2% a pool rarely holds two positives, so the simulated
     # cost lies within 4 Monte Carlo standard errors of it (plus the rare third round)
-    from bayespool.simulate import simulate
+    from bayespool.simulation import simulate
     assay = Assay(0.995, ConstantSensitivity(0.95))
     p, k, n = 0.002, 32, 960
-    sim = simulate("pool-then-code", n, p, assay, runs=150, seed=3, pool_size=k)
+    sim = simulate("pool-then-code", n, prevalence=p, assay=assay, runs=150, seed=3, pool_size=k)
     q = 1 - p
     p_pos = 0.95 * (1 - q**k) + 0.005 * q**k
     expected = 1 / k + p_pos * code_design(k).n_pools / k
@@ -86,9 +86,9 @@ def test_simulate_cli(cli):
 
 
 def test_planner_offers_a_code_follow_up_of_a_positive_pool():
-    from bayespool.decode import decode
-    from bayespool.plan.candidates import CODE, generate
-    from bayespool.decode.graph import components
+    from bayespool.decoders import decode
+    from bayespool.planning.candidates import CODE, generate
+    from bayespool.decoders.graph import components
     from bayespool.run import Run
     assay = Assay(0.999, ConstantSensitivity(0.99))
     layout = pd.DataFrame({"pool": ["P1"] * 16 + ["P2"] * 16,

@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity, TableSensitivity
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.demo import run_demo
 from bayespool.report import build_report, write_report
 from bayespool.report.calibration import clopper_pearson
@@ -421,7 +421,7 @@ def test_write_report_is_atomic_and_returns_the_path(tmp_path):
 
 def test_calibration_section_names_what_a_past_run_fit_used(demo):
     # A fit from past runs (latent truth) must not be described as a validation.
-    from bayespool.calibrate import calibrate_runs
+    from bayespool.calibration import calibrate_runs
     folder = demo.result.folder
     run = Run.read(folder / "layout.csv", folder / "readouts.csv")
     fit = calibrate_runs(run, "constant")

@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity
-from bayespool.decode import decode
+from bayespool.decoders import decode
 from bayespool.report import build_report
 from bayespool.report.escape import text
 from bayespool.report.script import JS

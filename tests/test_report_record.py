@@ -265,7 +265,7 @@ def test_print_copy_has_review_fields_and_a_print_stylesheet(reports):
 
 def test_large_run_lists_only_the_specimens_not_called_negative():
     from bayespool.assay import Assay, ConstantSensitivity
-    from bayespool.decode import decode
+    from bayespool.decoders import decode
     from bayespool.report import build_report
     from bayespool.report.why import ALL_UP_TO
     from bayespool.run import Run

@@ -6,11 +6,11 @@ import pytest
 
 from bayespool.assay import Assay, ConstantSensitivity, DilutionSensitivity
 from bayespool.errors import InputError
-from bayespool.simulate import (PROTOCOLS, Outcome, Protocol, make_protocol, simulate, sweep)
-from bayespool.simulate import protocol as protocol_module
-from bayespool.simulate.characteristics import ratio_estimate, summarise_runs
-from bayespool.simulate.protocols.array import ArrayTesting
-from bayespool.simulate.protocols.dorfman import DorfmanTesting
+from bayespool.simulation import (PROTOCOLS, Outcome, Protocol, make_protocol, simulate, sweep)
+from bayespool.simulation import protocol as protocol_module
+from bayespool.simulation.characteristics import ratio_estimate, summarise_runs
+from bayespool.simulation.protocols.array import ArrayTesting
+from bayespool.simulation.protocols.dorfman import DorfmanTesting
 
 PERFECT = Assay(1.0, ConstantSensitivity(1.0))
 
@@ -29,7 +29,7 @@ def kim_2007(p, k, se, sp):
     (False, 200, 600, 0.10, 4, 0.85, 0.95),
 ])
 def test_dorfman_simulation_agrees_with_kim_2007(batch, n, runs, p, k, se, sp):
-    sim = simulate("dorfman", n, p, Assay(sp, ConstantSensitivity(se)), runs=runs, seed=11,
+    sim = simulate("dorfman", n, prevalence=p, assay=Assay(sp, ConstantSensitivity(se)), runs=runs, seed=11,
                    batch=batch, pool_size=k)
     c = sim.characteristics
     for name, value in kim_2007(p, k, se, sp).items():
@@ -39,7 +39,7 @@ def test_dorfman_simulation_agrees_with_kim_2007(batch, n, runs, p, k, se, sp):
 
 def test_dorfman_with_dilution_agrees_with_its_closed_form():
     assay = Assay(0.98, DilutionSensitivity(se_max=0.97, r50=6.0, slope=1.3))
-    sim = simulate("dorfman", 960, 0.08, assay, runs=1500, seed=3, pool_size=8)
+    sim = simulate("dorfman", 960, prevalence=0.08, assay=assay, runs=1500, seed=3, pool_size=8)
     c, e = sim.characteristics, sim.expected
     for name in ("tests_per_sample", "sensitivity", "specificity"):
         assert abs(c.estimate[name] - e[name]) < 4 * c.mcse[name], name
@@ -51,12 +51,12 @@ def test_batch_path_is_the_per_run_rule():
     assay = Assay(0.95, DilutionSensitivity(se_max=0.95, r50=4.0, slope=1.0))
     # one cohort: both paths read the same random numbers in the same order -> identical results
     for seed in range(20):
-        a = simulate("dorfman", 103, 0.1, assay, runs=1, seed=seed, pool_size=6, batch=True)
-        b = simulate("dorfman", 103, 0.1, assay, runs=1, seed=seed, pool_size=6, batch=False)
+        a = simulate("dorfman", 103, prevalence=0.1, assay=assay, runs=1, seed=seed, pool_size=6, batch=True)
+        b = simulate("dorfman", 103, prevalence=0.1, assay=assay, runs=1, seed=seed, pool_size=6, batch=False)
         assert a.runs_frame.equals(b.runs_frame)
     # error-free: identical run by run for many runs (same cohorts from the shared stream)
-    a = simulate("dorfman", 50, 0.1, PERFECT, runs=300, seed=4, pool_size=4, batch=True)
-    b = simulate("dorfman", 50, 0.1, PERFECT, runs=300, seed=4, pool_size=4, batch=False)
+    a = simulate("dorfman", 50, prevalence=0.1, assay=PERFECT, runs=300, seed=4, pool_size=4, batch=True)
+    b = simulate("dorfman", 50, prevalence=0.1, assay=PERFECT, runs=300, seed=4, pool_size=4, batch=False)
     assert a.runs_frame.equals(b.runs_frame)
     assert (a.runs_frame["false_positive"] == 0).all() and (a.runs_frame["false_negative"] == 0).all()
 
@@ -80,7 +80,7 @@ def test_mcse_matches_spread_of_replicate_estimates():
     est, se = {"tests_per_sample": [], "sensitivity": [], "specificity": []}, \
         {"tests_per_sample": [], "sensitivity": [], "specificity": []}
     for rep in range(40):
-        c = simulate("dorfman", 500, 0.05, assay, runs=100, seed=1000 + rep,
+        c = simulate("dorfman", 500, prevalence=0.05, assay=assay, runs=100, seed=1000 + rep,
                      pool_size=5).characteristics
         for name in est:
             est[name].append(c.estimate[name])
@@ -149,7 +149,7 @@ def test_array_positive_row_without_positive_column_retests_the_row():
 
 def test_individual_testing_is_se_and_sp():
     assay = Assay(0.9, ConstantSensitivity(0.8))
-    sim = simulate("individual", 400, 0.3, assay, runs=300, seed=2)
+    sim = simulate("individual", 400, prevalence=0.3, assay=assay, runs=300, seed=2)
     c = sim.characteristics
     assert c.estimate["tests_per_sample"] == 1 and c.estimate["rounds"] == 1
     # binomial facts: Se and Sp of a single test (common practice)
@@ -162,12 +162,12 @@ def test_cohort_from_priors(tmp_path):
     f = tmp_path / "samples.csv"
     rows = ["sample,prior"] + [f"A{i},{0.9 if i < 10 else 0.001}" for i in range(100)]
     f.write_text("\n".join(rows) + "\n", encoding="utf-8")
-    sim = simulate("individual", str(f), None, PERFECT, runs=200, seed=1)
+    sim = simulate("individual", str(f), prevalence=None, assay=PERFECT, runs=200, seed=1)
     assert sim.prevalence is None and sim.expected is None
     assert sim.characteristics.mean_positives == pytest.approx(9.1, abs=0.5)
     assert sim.notes
     with pytest.raises(InputError, match="prevalence"):
-        simulate("individual", 10, None, PERFECT, runs=2)
+        simulate("individual", 10, prevalence=None, assay=PERFECT, runs=2)
 
 
 def test_ratio_estimator_standard_error():
@@ -202,14 +202,14 @@ def test_sweep_over_prevalences_and_pool_sizes():
 
 def test_registry_and_protocol_options():
     assert {"individual", "dorfman", "array"} <= set(PROTOCOLS)
-    with pytest.raises(InputError, match="--pool-size"):
+    with pytest.raises(InputError, match="pool_size"):  # --pool-size on the CLI: test_api.py
         make_protocol("dorfman")
     with pytest.raises(InputError, match="unknown scheme"):
         make_protocol("nope")
     # options a protocol does not take are not passed to it
     assert make_protocol("individual", pool_size=4, rows=3).name == "individual"
     assert make_protocol("dorfman", pool_size=4, rows=3).pool_size == 4
-    with pytest.raises(InputError, match="max-pool-size"):
+    with pytest.raises(InputError, match="max_pool_size"):
         make_protocol("dorfman", pool_size=40, max_pool_size=32)
 
 
@@ -221,7 +221,7 @@ def test_a_protocol_written_against_the_interface_runs():
             tester.read_round(np.array([0, tester.n]), np.arange(tester.n))
             return tester.outcome(np.ones(tester.n, dtype=bool))
 
-    sim = simulate(Everyone(), 20, 0.2, PERFECT, runs=30, seed=0)
+    sim = simulate(Everyone(), 20, prevalence=0.2, assay=PERFECT, runs=30, seed=0)
     c = sim.characteristics
     assert c.estimate["sensitivity"] == 1.0 and c.estimate["specificity"] == 0.0
     assert c.estimate["tests_per_sample"] == pytest.approx(1 / 20)
@@ -231,10 +231,10 @@ def test_a_protocol_written_against_the_interface_runs():
 
 
 def test_progress_bar_goes_to_stderr_only_when_asked(capsys):
-    simulate("dorfman", 100, 0.05, PERFECT, runs=20, seed=0, pool_size=5, progress=True)
+    simulate("dorfman", 100, prevalence=0.05, assay=PERFECT, runs=20, seed=0, pool_size=5, progress=True)
     shown = capsys.readouterr()
     assert "/20 [" in shown.err and "run" in shown.err and shown.out == ""
-    simulate("dorfman", 100, 0.05, PERFECT, runs=20, seed=0, pool_size=5, progress=False)
+    simulate("dorfman", 100, prevalence=0.05, assay=PERFECT, runs=20, seed=0, pool_size=5, progress=False)
     assert capsys.readouterr().err == ""
 
 

@@ -80,15 +80,15 @@ def array_design(samples, rows: int | None = None, cols: int | None = None,
         rows, cols = default_grid(n, limit)
     elif rows is None or cols is None:
         given = check_count(rows if rows is not None else cols,
-                            "--rows" if rows is not None else "--cols")
+                            "rows" if rows is not None else "cols")
         other = max(1, math.ceil(min(n, PLATE_ROWS * PLATE_COLS) / given))
         if limit is not None:
             other = min(other, limit)
         rows, cols = (given, other) if rows is not None else (other, given)
-    rows, cols = check_count(rows, "--rows"), check_count(cols, "--cols")
+    rows, cols = check_count(rows, "rows"), check_count(cols, "cols")
     if limit is not None and max(rows, cols) > limit:
         raise InputError(f"a {rows} x {cols} grid makes pools of {max(rows, cols)} specimens, "
-                         f"above --max-pool-size {limit}")
+                         f"above max_pool_size {limit}", parameters=("max_pool_size",))
     ptr, members, labels, n_grids = array_pools(n, rows, cols)
     notes = []
     if n % (rows * cols):

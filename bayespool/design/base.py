@@ -14,25 +14,11 @@ import pandas as pd
 
 from ..errors import InputError
 from ..run import PoolIncidence, csr
-
-
-def check_count(value, name: str, minimum: int = 1) -> int:
-    """A whole number >= minimum, or an InputError naming the option."""
-    if isinstance(value, bool):
-        raise InputError(f"{name} must be a whole number, got {value!r}")
-    try:
-        v = int(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{name} must be a whole number, got {value!r}") from None
-    if v != value and not (isinstance(value, str) and str(v) == value.strip()):
-        raise InputError(f"{name} must be a whole number, got {value!r}")
-    if v < minimum:
-        raise InputError(f"{name} must be at least {minimum}, got {v}")
-    return v
+from ..validation import check_count
 
 
 def check_max_pool_size(value) -> int | None:
-    return None if value is None else check_count(value, "--max-pool-size")
+    return None if value is None else check_count(value, "max_pool_size")
 
 
 def guaranteed_disjunct(max_overlap: int, min_weight: int, n_samples: int) -> int:
@@ -171,7 +157,7 @@ def build_design(scheme: str, sample_ids, pool_ids, pool_ptr, pool_members, *,
     n = len(sample_ids)
     if max_pool_size is not None and len(sizes) and sizes.max() > max_pool_size:
         raise InputError(f"the {scheme} design has pools of {int(sizes.max())} specimens, above "
-                         f"--max-pool-size {max_pool_size}")
+                         f"max_pool_size {max_pool_size}", parameters=("max_pool_size",))
     weight = np.bincount(pool_members, minlength=n)
     if compute_overlap:
         overlap = max_overlap(pool_ptr, pool_members, n)

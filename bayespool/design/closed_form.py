@@ -26,8 +26,8 @@ import pandas as pd
 from scipy.stats import binom
 
 from ..assay import Assay, ConstantSensitivity
-from ..run import check_prevalence
-from .base import check_count, check_max_pool_size
+from ..validation import check_count, check_open_probability
+from .base import check_max_pool_size
 
 PERFECT = Assay(1.0, ConstantSensitivity(1.0))
 
@@ -65,8 +65,8 @@ def _mean_se(assay: Assay, k: int, positives: np.ndarray, weights: np.ndarray) -
 def dorfman_expected(prevalence: float, pool_size: int, assay: Assay | None = None
                      ) -> DorfmanExpectation:
     """Kim et al. (2007) closed forms, generalised to Se(k, d); ``assay=None`` means error-free."""
-    p = check_prevalence(prevalence)
-    k = check_count(pool_size, "pool size")
+    p = check_open_probability(prevalence, "prevalence")
+    k = check_count(pool_size, "pool_size")
     assay = PERFECT if assay is None else assay
     sp = assay.specificity
     se1 = float(assay.positive_probability(np.array([1]), np.array([1]))[0])
@@ -120,14 +120,14 @@ def default_max_pool_size(prevalence: float) -> int:
     return int(min(1000, max(64, math.ceil(4.0 / math.sqrt(prevalence)))))
 
 
-def optimal_dorfman(prevalence: float, assay: Assay | None = None,
+def optimal_dorfman(prevalence: float, assay: Assay | None = None, *,
                     max_pool_size: int | None = None) -> DorfmanOptimum:
     """Best Dorfman pool size (fewest expected tests per specimen) for k = 1..max_pool_size.
 
     Dorfman (1943) without error; Kim et al. (2007) (with Se(k, d) as above) with an assay. k = 1 is
     individual testing; when it wins, pooling saves nothing at that prevalence.
     """
-    p = check_prevalence(prevalence)
+    p = check_open_probability(prevalence, "prevalence")
     limit = check_max_pool_size(max_pool_size)
     kmax = default_max_pool_size(p) if limit is None else limit
     sizes = list(range(1, kmax + 1))
@@ -149,8 +149,8 @@ def dorfman_cohort_expected(prevalence: float, n: int, pool_size: int,
     When ``n`` is not a multiple of the pool size the last, smaller pool is weighed in by its
     specimens, so the result is what a simulation of exactly this cohort estimates.
     """
-    k = check_count(pool_size, "pool size")
-    n = check_count(n, "number of specimens")
+    k = check_count(pool_size, "pool_size")
+    n = check_count(n, "n")
     full, rest = divmod(n, k)
     parts = [(full * k, dorfman_expected(prevalence, k, assay))] if full else []
     if rest:

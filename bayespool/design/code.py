@@ -29,7 +29,8 @@ import numpy as np
 
 from ..errors import InputError
 from . import gf2
-from .base import Design, build_design, check_count, check_max_pool_size, pool_labels
+from ..validation import check_count
+from .base import Design, build_design, check_max_pool_size, pool_labels
 from .specimens import specimens
 
 MAX_DIMENSION = 20          # 2^20 codewords enumerated at most
@@ -219,7 +220,7 @@ def choose_words(n: int, errors: int = 1, family: str | None = None,
             "one weight: specimens are in different numbers of pools (lightest words first)")
     if not _fits(chosen, code.length, max_pool_size):
         raise InputError(f"a code design for {n} specimens makes pools larger than "
-                         f"--max-pool-size {max_pool_size}; use fewer specimens per design")
+                         f"`max_pool_size` {max_pool_size}; use fewer specimens per design")
     return CodeChoice(code, chosen, False, note)
 
 
@@ -284,7 +285,7 @@ def code_design(samples, errors: int = 1, code: str | None = None,
     """
     spec = specimens(samples)
     n = len(spec)
-    e = check_count(errors, "--errors")
+    e = check_count(errors, "errors")
     limit = check_max_pool_size(max_pool_size)
     choice = choose_words(n, e, code, limit)
     c = choice.code

@@ -18,7 +18,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
-from .base import Design, build_design, check_count, check_max_pool_size, guaranteed_disjunct
+from ..validation import check_count, parameter_error
+from .base import Design, build_design, check_max_pool_size, guaranteed_disjunct
 from .specimens import specimens
 
 
@@ -134,30 +135,33 @@ def kautz_singleton_design(samples, positives: int | None = None, q: int | None 
     limit = check_max_pool_size(max_pool_size)
     if q is None and dimension is None and length is None:
         if positives is None:
-            raise InputError("the kautz-singleton design needs --positives D (or --q and "
-                             "--dimension)")
-        d = check_count(positives, "--positives")
+            raise parameter_error("the kautz-singleton design needs positives (or q and "
+                                  "dimension)", "positives", "q", "dimension")
+        d = check_count(positives, "positives")
         params = choose_parameters(n, d, limit)
     else:
         if q is None or dimension is None:
-            raise InputError("give both --q and --dimension (or only --positives)")
-        q = check_count(q, "--q", 2)
+            raise parameter_error("give both q and dimension (or only positives)", "q",
+                                  "dimension", "positives")
+        q = check_count(q, "q", 2)
         if not is_prime(q):
-            raise InputError(f"--q must be a prime (GF(q) is built as integers mod q), got {q}")
-        m = check_count(dimension, "--dimension")
-        L = q if length is None else check_count(length, "--length")
+            raise parameter_error(f"q must be a prime (GF(q) is built as integers mod q), got {q}",
+                                  "q")
+        m = check_count(dimension, "dimension")
+        L = q if length is None else check_count(length, "length")
         if L > q:
-            raise InputError(f"--length {L} exceeds q = {q}: a Reed-Solomon code over GF(q) has "
-                             "at most q evaluation points")
+            raise parameter_error(f"length {L} exceeds q = {q}: a Reed-Solomon code over GF(q) "
+                                  "has at most q evaluation points", "length")
         params = CodeParameters(q, L, m)
         if params.capacity < n:
             raise InputError(f"q^m = {q}^{m} = {params.capacity} codewords cannot cover {n} "
-                             "specimens; raise --q or --dimension")
+                             "specimens; raise q or dimension", parameters=("q", "dimension"))
         if positives is not None and params.disjunct is not None:
-            d = check_count(positives, "--positives")
+            d = check_count(positives, "positives")
             if d > params.disjunct:
                 raise InputError(f"q = {q}, length {L}, dimension {m} guarantees only "
-                                 f"{params.disjunct}-disjunct, fewer than --positives {d}")
+                                 f"{params.disjunct}-disjunct, fewer than positives {d}",
+                                 parameters=("positives",))
     words = codewords(n, params)
     qq, L = params.q, params.length
     owner = (np.arange(L, dtype=np.int64)[None, :] * qq + words).ravel()

@@ -14,7 +14,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..plates import FORMATS, Positions, well_name
-from .base import Design, build_design, check_count, guaranteed_disjunct, pool_labels
+from ..validation import check_count
+from .base import Design, build_design, guaranteed_disjunct, pool_labels
 
 FILLS = ("columns", "rows")
 
@@ -42,8 +43,8 @@ def plate_array_design(spec, pos: Positions, rows: int | None = None, cols: int 
     for plate in pos.plates():
         on = np.flatnonzero(pos.plate == plate)
         n_rows, n_cols = FORMATS[pos.format[plate] or 384]
-        tr = n_rows if rows is None else check_count(rows, "--rows")
-        tc = n_cols if cols is None else check_count(cols, "--cols")
+        tr = n_rows if rows is None else check_count(rows, "rows")
+        tc = n_cols if cols is None else check_count(cols, "cols")
         if tr > n_rows or tc > n_cols:
             raise InputError(f"a {tr} x {tc} grid does not fit the {n_rows} x {n_cols} plate "
                              f"{plate!r}")
@@ -81,7 +82,7 @@ def plate_array_design(spec, pos: Positions, rows: int | None = None, cols: int 
 def pipetting_order(pos: Positions, fill: str) -> np.ndarray:
     """Specimen indices plate by plate, wells in the given fill order."""
     if fill not in FILLS:
-        raise InputError(f"--fill must be rows or columns, got {fill!r}")
+        raise InputError(f"`fill` must be rows or columns, got {fill!r}")
     plate_rank = {p: i for i, p in enumerate(pos.plates())}
     rank = np.array([plate_rank[p] for p in pos.plate], dtype=np.int64)
     first, second = (pos.col, pos.row) if fill == "columns" else (pos.row, pos.col)
@@ -93,7 +94,7 @@ def plate_dorfman_design(spec, pos: Positions, pool_size: int, fill: str = "colu
     """Pools of ``pool_size`` neighbouring wells in pipetting order, never across plates."""
     ids = spec.ids
     require_wells(pos, ids, "a Dorfman design on plates")
-    k = check_count(pool_size, "--pool-size")
+    k = check_count(pool_size, "pool_size")
     order = pipetting_order(pos, fill)
     plate_of = pos.plate[order]
     blocks = []

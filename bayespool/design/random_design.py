@@ -21,7 +21,8 @@ import math
 import numpy as np
 
 from ..errors import InputError
-from .base import Design, build_design, check_count, check_max_pool_size, pool_labels
+from ..validation import check_count, check_seed
+from .base import Design, build_design, check_max_pool_size, pool_labels
 from .specimens import specimens
 
 
@@ -98,32 +99,35 @@ def random_design(samples, pools_per_sample: int = 2, pools: int | None = None,
     """
     spec = specimens(samples)
     n = len(spec)
-    w = check_count(pools_per_sample, "--pools-per-sample")
+    w = check_count(pools_per_sample, "pools_per_sample")
     limit = check_max_pool_size(max_pool_size)
     if pools is None:
         if limit is None:
-            raise InputError("the random design needs --pools T or --max-pool-size K")
+            raise InputError("the random design needs pools or max_pool_size",
+                             parameters=("pools", "max_pool_size"))
         pools = max(w, math.ceil(n * w / limit))
-    t = check_count(pools, "--pools")
+    t = check_count(pools, "pools")
     if w > t:
-        raise InputError(f"--pools-per-sample {w} exceeds the number of pools ({t})")
+        raise InputError(f"pools_per_sample {w} exceeds the number of pools ({t})",
+                         parameters=("pools_per_sample",))
     if limit is not None and math.ceil(n * w / t) > limit:
         raise InputError(f"{n} specimens in {w} pools each need at least "
-                         f"{math.ceil(n * w / limit)} pools of at most {limit} (got --pools {t})")
+                         f"{math.ceil(n * w / limit)} pools of at most {limit} (got pools {t})",
+                         parameters=("pools",))
     if math.comb(t, w) < n:
         raise InputError(f"{n} specimens cannot each have a set of pools of their own: {t} pools "
                          f"give only {math.comb(t, w)} distinct sets of {w}, and two specimens in "
-                         "the same pools can never be told apart; raise --pools or "
-                         "--pools-per-sample")
-    rng = np.random.default_rng(seed)
+                         "the same pools can never be told apart; raise `pools` or "
+                         "`pools_per_sample`")
+    rng = check_seed(seed)
     for _ in range(REDEALS):
         table = deal_memberships(n, w, t, rng)
         if separate_identical(table, rng):
             break
     else:
         raise InputError(f"found no layout that gives each of the {n} specimens its own set of "
-                         f"{w} pools out of {t} (nearly every set is needed); raise --pools or "
-                         "--pools-per-sample")
+                         f"{w} pools out of {t} (nearly every set is needed); raise `pools` or "
+                         "`pools_per_sample`")
     owner = table.ravel()
     member = np.repeat(np.arange(n, dtype=np.int32), w)
     order = np.argsort(owner, kind="stable")

@@ -87,7 +87,7 @@ def specimens(arg) -> Specimens:
         return arg
     if isinstance(arg, (int, np.integer)) and not isinstance(arg, bool):
         if arg < 1:
-            raise InputError(f"--samples must be at least 1, got {arg}")
+            raise InputError(f"samples must be at least 1, got {arg}", parameters=("samples",))
         return Specimens(numbered(int(arg)))
     if isinstance(arg, pd.DataFrame):
         if "sample" not in arg.columns:

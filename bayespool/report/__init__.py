@@ -25,13 +25,14 @@ DEFAULT_TITLE = "bayespool run report"
 
 def build_report(run=None, assay=None, posterior=None, plan=None, calibration=None, title=None, *,
                  created=None, notes=(), file_name=None, controls=None, worklist=None,
-                 audit=None) -> str:
+                 audit=None, prevalence=None) -> str:
     """The report as an HTML string. ``created`` (datetime or text) defaults to now, in UTC;
     ``notes`` are extra lines for the run summary (e.g. that the data is invented); ``controls``
     (a :class:`bayespool.controls.ControlCheck`) adds the control status per plate, ``worklist``
     (a :class:`bayespool.worklist.Worklist`) the destination plate map; ``audit`` (a
     :class:`bayespool.audit.Audit`) is the audit trail, made from the run's input files when not
-    given."""
+    given; ``prevalence`` (a :class:`bayespool.surveillance.PrevalenceEstimates`) the estimates
+    by group."""
     from .bench import controls_section, destinations_section
     from .calibration import calibration_section, observed_points
     from .calls import calls_section, map_section
@@ -43,9 +44,9 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     from .summary import assay_section, decoder_section, run_section
     from .why import why_section
 
-    if all(x is None for x in (run, assay, posterior, plan, calibration, worklist)):
+    if all(x is None for x in (run, assay, posterior, plan, calibration, worklist, prevalence)):
         raise ValueError("nothing to report: give at least one of run, assay, posterior, plan, "
-                         "calibration")
+                         "calibration, worklist, prevalence")
     if run is not None and posterior is not None and posterior.n_samples != run.n_samples:
         raise ValueError(f"the posterior has {posterior.n_samples} specimens but the run has "
                          f"{run.n_samples}")
@@ -60,6 +61,9 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         if calibration is not None else (None, None)
     if run is not None:
         add("summary", "Run", run_section(run, notes, fitted_prevalence(calibration)))
+    if prevalence is not None:
+        from .prevalence import prevalence_section
+        add("prevalence", "Prevalence", prevalence_section(prevalence))
     add("controls", "Controls", controls_section(controls))
     if posterior is not None:
         add("decoder", "Decoder", decoder_section(posterior, run))
@@ -94,6 +98,8 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         meta.append(f"{posterior.n_samples} specimens: {c['positive']} positive, "
                     f"{c['inconclusive']} inconclusive, {c['negative']} negative "
                     f"(decoder: {posterior.method})")
+    if prevalence is not None:
+        meta.extend(notes if run is None else ())
     footer = f"bayespool {__version__}. This file is self-contained and loads nothing."
     return page(title or DEFAULT_TITLE, meta, toc, sections, footer)
 
@@ -106,7 +112,7 @@ def fitted_prevalence(calibration):
     return prev if isinstance(prev, dict) and prev.get("estimate") is not None else None
 
 
-def write_report(path, run=None, assay=None, posterior=None, plan=None, calibration=None,
+def write_report(path, *, run=None, assay=None, posterior=None, plan=None, calibration=None,
                  title=None, **options) -> Path:
     """Write the report to ``path`` atomically (see :func:`build_report` for ``options``); a path
     that is one of the run's input files is refused."""

@@ -1,0 +1,150 @@
+"""``plan``: decode if needed, draw, build candidates, pick the batch, name the new pools."""
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+
+from ..decoders.graph import components
+from ..defaults import METHODS, NEGATIVE_BELOW, POSITIVE_ABOVE
+from ..decoders.posterior import call_codes
+from ..errors import InputError
+from ..validation import (check_choice, check_count, check_nonnegative, check_seed,
+                          check_thresholds)
+from .candidates import generate
+from . import (DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION,
+               DEFAULT_TESTS)
+from .draws import posterior_draws
+from .greedy import select_batch
+from .ids import fresh_pool_ids
+from .information import readout_table
+from .result import Plan
+
+UNLIMITED = np.iinfo(np.int64).max // 4
+
+def _draws_left(run, max_draws) -> np.ndarray:
+    """How many more times each specimen may be drawn: the option, and a samples-file column."""
+    if max_draws is None:
+        left = np.full(run.n_samples, UNLIMITED, dtype=np.int64)
+    elif np.ndim(max_draws) == 0:
+        left = np.full(run.n_samples, check_count(max_draws, "max_draws", 0), dtype=np.int64)
+    else:
+        left = np.array(max_draws, dtype=np.int64)
+        if left.shape != (run.n_samples,) or (left < 0).any():
+            raise InputError(f"max_draws must be one whole number >= 0 or one per specimen "
+                             f"({run.n_samples})", parameters=("max_draws",))
+    sm = run.samples
+    if sm is not None and "draws_left" in sm.columns:
+        raw = sm["draws_left"].astype(str).str.strip()
+        given = (raw != "").to_numpy()
+        vals = np.array([int(v) if v.isdigit() else -1 for v in raw[given]], dtype=np.int64)
+        if (vals < 0).any():
+            bad = raw[given].iloc[int(np.flatnonzero(vals < 0)[0])]
+            raise InputError(f"draws_left {bad!r} must be a whole number >= 0",
+                             run.sources.get("samples"), column="draws_left")
+        idx = sm.index.to_numpy()[given]
+        left[idx] = np.minimum(left[idx], vals)
+    return left
+
+
+def untested(run) -> np.ndarray:
+    """True for specimens in no read pool: a prior alone never decides a specimen, however low."""
+    read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
+    return np.bincount(run.pool_members[read], minlength=run.n_samples) == 0
+
+
+def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
+         max_pool_size: int = DEFAULT_MAX_POOL_SIZE, max_draws=None,
+         negative_below: float | None = None, positive_above: float | None = None,
+         n_draws: int = DEFAULT_DRAWS, seed=None, min_information: float = DEFAULT_MIN_INFORMATION,
+         relative_information: float = 0.0, max_linked: int = DEFAULT_MAX_LINKED,
+         method: str = "auto", draws: np.ndarray | None = None, id_prefix: str = "B",
+         replicates_use_material: bool = False) -> Plan:
+    """Plan up to ``tests`` pools of at most ``max_pool_size`` undecided specimens.
+
+    Undecided: probability between the thresholds, or in no read pool yet (so a first stage at a
+    prevalence below ``negative_below`` still tests everyone).
+
+    ``posterior``: the run's decoded posterior (decoded here with ``method`` when None).
+    ``max_draws``: how many more times a specimen may be drawn in this batch (specimen volume), one
+    number or one per specimen; a ``draws_left`` column of the samples file sets it per specimen.
+    Replicate reads re-use an existing pool's mix and draw nothing, unless
+    ``replicates_use_material`` (each reading takes a fresh aliquot of every member). ``max_linked``
+    bounds the group of specimens that a planned pool links together by joining groups (so the next
+    decode stays exact); tests within one existing group are always allowed. ``min_information``:
+    stop when the best remaining test is expected to tell fewer bits; ``relative_information``: or
+    fewer than that fraction of the first pick. ``draws``: joint posterior draws (draws x specimens)
+    to use instead of making them. ``seed``: reproducible draws.
+    """
+    tests = check_count(tests, "tests", 1)
+    max_pool_size = check_count(max_pool_size, "max_pool_size", 1)
+    max_linked = check_count(max_linked, "max_linked", 1)
+    n_draws = check_count(n_draws, "n_draws", 10)
+    min_information = check_nonnegative(min_information, "min_information")
+    relative_information = check_nonnegative(relative_information, "relative_information")
+    method = check_choice(method, "method", METHODS)
+    check_seed(seed)  # a bad seed fails before any work
+    if posterior is None:
+        from ..decoders import decode
+        lo, hi = check_thresholds(NEGATIVE_BELOW if negative_below is None else negative_below,
+                                  POSITIVE_ABOVE if positive_above is None else positive_above)
+        posterior = decode(run, assay, method=method, negative_below=lo, positive_above=hi,
+                           seed=seed)
+    else:
+        if len(posterior.probability) != run.n_samples:
+            raise InputError("the posterior does not belong to this run (different specimens)")
+        lo, hi = check_thresholds(posterior.negative_below if negative_below is None
+                                  else negative_below,
+                                  posterior.positive_above if positive_above is None
+                                  else positive_above)
+        if (lo, hi) != (posterior.negative_below, posterior.positive_above):
+            posterior = dataclasses.replace(posterior, negative_below=lo, positive_above=hi)
+    prob = np.asarray(posterior.probability, dtype=float)
+    undecided = np.flatnonzero((call_codes(prob, lo, hi) == 1) | untested(run))
+    notes: list = []
+    kmax = max(max_pool_size, int(run.pool_size.max()) if run.n_pools else 1)
+    qtab = readout_table(assay, kmax)
+    allowed = ~np.isnan(qtab[:, 0])
+    if not undecided.size:
+        return _empty(run, True, 0, "decided", notes)
+    if run.n_samples and not allowed[1:max_pool_size + 1].any():
+        raise InputError(f"the assay covers no pool size up to {max_pool_size}",
+                         run.sources.get("assay"))
+    rng = check_seed(seed)
+    if draws is None:
+        draws = posterior_draws(run, assay, posterior, n_draws, rng, notes)
+    elif draws.ndim != 2 or draws.shape[1] != run.n_samples:
+        raise InputError(f"draws must be an array of draws x {run.n_samples} specimens",
+                         parameters=("draws",))
+    xt = np.ascontiguousarray(np.asarray(draws, dtype=np.uint8).T)
+    w = np.full(xt.shape[1], 1.0 / xt.shape[1])
+    comps = components(run)
+    cands = generate(run, prob, undecided, comps, max_pool_size, allowed)
+    left = _draws_left(run, max_draws)
+    batch = select_batch(xt, w, cands, comps.sample_label, comps.sizes.astype(np.int64), qtab,
+                         tests, left, max_linked, min_information, relative_information,
+                         replicates_use_material)
+    if not len(batch.chosen):
+        notes.append("no candidate test is expected to tell anything within the limits "
+                     "(material left, pool size, linked group size)")
+        return _empty(run, False, len(undecided), batch.stop, notes)
+    chosen = batch.chosen
+    ptr = np.zeros(len(chosen) + 1, dtype=np.int64)
+    np.cumsum(cands.sizes[chosen], out=ptr[1:])
+    members = np.concatenate([cands.members_of(int(c)) for c in chosen])
+    if batch.stop == "information" and len(chosen) < tests:
+        notes.append(f"planned {len(chosen)} of {tests} tests: the others would tell less than "
+                     "the minimum information")
+    return Plan(run.sample_ids, np.array(fresh_pool_ids(run.pool_ids, len(chosen), id_prefix),
+                                         dtype=object),
+                ptr, members, cands.kind[chosen], cands.source[chosen],
+                batch.positive_probability, batch.gain, batch.total_information,
+                len(undecided), False, run.pool_ids, batch.stop, xt.shape[1], notes)
+
+
+def _empty(run, decided: bool, undecided: int, stop: str, notes: list) -> Plan:
+    z = np.zeros(0)
+    return Plan(run.sample_ids, np.zeros(0, dtype=object), np.zeros(1, dtype=np.int64),
+                np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int8),
+                np.zeros(0, dtype=np.int64), z, z, 0.0, undecided, decided, run.pool_ids, stop,
+                0, notes)

@@ -1,0 +1,103 @@
+"""The Bayesian loop: decode, plan the most informative next pools, read them, repeat.
+
+Each round decodes every readout so far (:func:`bayespool.decoders.decode`), plans a batch by expected
+information gain (:func:`bayespool.planning.plan`), and reads it through the :class:`Tester`; the loop
+stops when every specimen is decided (probability below the negative threshold or above the positive
+one, after at least one readout) or when no test within the limits would tell anything more.
+Specimens still undecided then are called by whether their probability exceeds one half. The first
+round starts from the priors alone, so its pools are sized for information at the prevalence. This
+is sequential Bayesian experimental design (Lindley 1956; for pooled tests Cuturi, Teboul & Vert
+2020, arXiv:2004.12508).
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from ...defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
+from ...errors import InputError
+from ..protocol import Outcome, Protocol, Tester
+
+DEFAULT_TESTS_PER_ROUND = 96   # one plate per round
+DEFAULT_RELATIVE = 0.5          # a round takes tests telling at least half of its best one
+DEFAULT_MAX_ROUNDS = 40
+
+
+class BayesianLoop(Protocol):
+    """Decode -> plan -> read, round after round, until every specimen is decided."""
+
+    name = "bayes"
+
+    def __init__(self, max_pool_size: int | None = None, tests: int | None = None,
+                 negative_below: float | None = None, positive_above: float | None = None,
+                 method: str | None = None, max_draws: int | None = None,
+                 n_draws: int | None = None, relative_information: float | None = None,
+                 max_rounds: int | None = None, seed=None):
+        """``tests``: tests per round (at most); ``method``: the decoder; ``max_draws``: material
+        per specimen over the whole loop; ``relative_information``: a round keeps tests worth at
+        least this fraction of its best one; ``seed``: the planner's draws (else from the
+        Tester)."""
+        from ...defaults import METHODS
+        from ...planning import DEFAULT_MAX_POOL_SIZE
+        from ...planning.draws import DEFAULT_DRAWS
+        self.max_pool_size = DEFAULT_MAX_POOL_SIZE if max_pool_size is None else int(max_pool_size)
+        self.tests_per_round = DEFAULT_TESTS_PER_ROUND if tests is None else int(tests)
+        self.method = "auto" if method is None else str(method)
+        if self.method not in METHODS:
+            raise InputError(f"unknown method {self.method!r} (choose one of "
+                             f"{', '.join(METHODS)})")
+        self.negative_below = NEGATIVE_BELOW if negative_below is None else float(negative_below)
+        self.positive_above = POSITIVE_ABOVE if positive_above is None else float(positive_above)
+        self.max_draws = max_draws  # total material per specimen over the whole loop
+        self.n_draws = DEFAULT_DRAWS if n_draws is None else int(n_draws)
+        self.relative_information = (DEFAULT_RELATIVE if relative_information is None
+                                     else float(relative_information))
+        self.max_rounds = DEFAULT_MAX_ROUNDS if max_rounds is None else int(max_rounds)
+        self.seed = seed
+        if self.max_pool_size < 1 or self.tests_per_round < 1 or self.max_rounds < 1:
+            raise InputError("the bayes scheme needs a pool size, tests per round and rounds >= 1")
+        self.last_posterior = None
+        self.undecided_at_end = 0
+
+    def parameters(self) -> dict:
+        return {"max_pool_size": self.max_pool_size, "tests": self.tests_per_round,
+                "method": self.method,
+                "negative_below": self.negative_below, "positive_above": self.positive_above,
+                "relative_information": self.relative_information,
+                "posterior_draws": self.n_draws, "material_limit": self.max_draws}
+
+    def run(self, tester: Tester, prior: np.ndarray) -> Outcome:
+        from ...decoders import decode
+        from ...planning import plan
+        from ...run import Run
+        n = tester.n
+        ids = pd.DataFrame({"sample": [f"S{i}" for i in range(n)]})
+        run = Run.from_frames(pd.DataFrame({"pool": [], "sample": []}), None, ids)
+        run.prior = np.broadcast_to(np.asarray(prior, dtype=float), (n,)).copy()
+        rng = np.random.default_rng(tester.rng.integers(2**63) if self.seed is None else self.seed)
+        for _ in range(self.max_rounds):
+            post = decode(run, tester.assay, method=self.method,
+                          negative_below=self.negative_below, positive_above=self.positive_above,
+                          seed=int(rng.integers(2**31)))
+            left = None
+            if self.max_draws is not None:
+                left = np.maximum(self.max_draws - tester.draws, 0)
+            nxt = plan(run, tester.assay, posterior=post, tests=self.tests_per_round,
+                       method=self.method,
+                       max_pool_size=self.max_pool_size, max_draws=left,
+                       n_draws=self.n_draws, seed=rng, min_information=0.0,
+                       relative_information=self.relative_information,
+                       replicates_use_material=True)  # the Tester counts every reading
+            if nxt.n_tests == 0:
+                break
+            results = tester.read_round(nxt.pool_ptr, nxt.pool_members)
+            run = nxt.extend(run, results)
+        else:
+            post = decode(run, tester.assay, method=self.method,
+                          negative_below=self.negative_below, positive_above=self.positive_above,
+                          seed=int(rng.integers(2**31)))
+        self.last_posterior = post
+        codes = post.call_codes()
+        self.undecided_at_end = int(np.sum(codes == 1))
+        calls = (codes == 2) | ((codes == 1) & (post.probability > 0.5))
+        return tester.outcome(calls)
