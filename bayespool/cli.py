@@ -131,6 +131,10 @@ def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) 
     _add_targets(p)
     p.add_argument("--seed", type=int, default=None, metavar="N",
                    help="random seed for sampling decoders (reproducible runs)")
+    p.add_argument("--assay-uncertainty", action="store_true",
+                   help="average each pool's likelihood over the fitted assay's uncertainty "
+                   "(the [fit.uncertainty] table calibrate writes); an approximation that treats "
+                   "each pool's assay as a separate draw")
     _add_result_words(p)
 
 
@@ -156,6 +160,11 @@ def _load_inputs(args):
     from .assay import DEFAULT_ASSAY, Assay
     from .controls import read_run
     assay = Assay.read(args.assay) if args.assay else DEFAULT_ASSAY
+    if getattr(args, "assay_uncertainty", False):
+        from .assay_spread import integrate
+        if not args.assay:
+            raise InputError("--assay-uncertainty needs --assay: a file written by calibrate")
+        assay = integrate(assay, args.assay)
     run, args.control_check = read_run(args.layout, args.readouts, args.samples,
                                        getattr(args, "controls", None),
                                        prevalence=args.prevalence,
@@ -163,6 +172,9 @@ def _load_inputs(args):
     run.sources["assay"] = args.assay
     if not args.assay:
         _note(args, f"no --assay given: assuming {assay.describe()}")
+    if getattr(args, "assay_uncertainty", False):
+        _note(args, "likelihoods averaged over the fitted assay's uncertainty (--assay-uncertainty;"
+                    " an approximation: each pool's assay is treated as a separate draw)")
     return run, assay
 
 
@@ -358,7 +370,8 @@ def _run_decode(args):
         summary = post.summary()
         summary["audit"] = audit.to_dict()
         summary.update({"pools": run.n_pools, "readouts": run.n_readouts, "out": args.out,
-                        "assay": assay.describe(), "reliable": not problems})
+                        "assay": assay.describe(), "reliable": not problems,
+                        "assay_uncertainty": args.assay_uncertainty})
         if check is not None:
             summary["controls"] = check.summary()
         print(json.dumps(_json_ready(summary), indent=2))
@@ -1115,6 +1128,7 @@ def _run_plan(args):
     if args.json:
         summary = result.summary()
         summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe(),
+                        "assay_uncertainty": args.assay_uncertainty,
                         "audit": audit.to_dict()})
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)

@@ -258,7 +258,9 @@ def test_auto_decodes_small_groups_exactly_and_large_ones_by_bp():
     post = decode(run, assay, method="auto")
     assert post.method == "exact+bp"
     method = post.sample_method
-    assert set(method[:64]) == {"bp"} and set(method[64:]) == {"exact"}
+    # the big group is loopy: BP stays approximate there and the method column says so
+    assert set(method[:64]) == {"bp-loopy"} and set(method[64:]) == {"exact"}
+    assert post.diagnostics["bp_loopy_samples"] == 64
     assert post.diagnostics["decoders"] == {"exact": {"components": 1, "samples": 8},
                                             "bp": {"components": 1, "samples": 64}}
     assert "exact for 1 group" in post.diagnostics["choice"]

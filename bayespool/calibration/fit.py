@@ -17,6 +17,7 @@ from ..assay import Assay
 from ..errors import InputError
 from ..validation import (check_choice, check_count, check_number, check_seed,
                           parameter_error)
+from . import boundary
 from .binomial import CellLikelihood
 from .curve import CurveModel, covariance
 from .families import FAMILIES, Family, check_fixed, family
@@ -165,13 +166,25 @@ def sensitivity_intervals(fit: SensitivityFit, method: str = "profile", level: f
     return out, notes, cov
 
 
-def edge_warnings(params, at_lower, at_upper, family_name: str, latent: bool = False) -> list:
-    """Plain-language warnings for estimates on the edge of the parameter space."""
+def edge_warnings(params, at_lower, at_upper, family_name: str, latent: bool = False,
+                  written: dict | None = None) -> list:
+    """Plain-language warnings for estimates on the edge of the parameter space.
+
+    ``written`` maps a parameter moved inside its range (boundary.py) to the value written."""
     out = []
+    written = written or {}
     for p, lo, hi in zip(params, at_lower, at_upper):
         if not (lo or hi):
             continue
         edge = "0" if lo else "1"
+        if p.name in written:
+            covers = "" if latent else (f" ({'no' if lo else 'every'} readout it covers was "
+                                        "positive)")
+            out.append(f"{p.name} is estimated at {edge}{covers}; the data do not show that "
+                       f"certainty, so the assay file gets {written[p.name]:.6g}, the "
+                       f"{boundary.RULE_SENSITIVITY} (the maximum-likelihood value stays in "
+                       "[fit])")
+            continue
         if p.name == "specificity":
             if hi:
                 out.append("the specificity is estimated at 1, so decode treats every positive "
@@ -307,29 +320,40 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
         raise InputError("the sensitivity fit keeps finding better optima while profiling; the "
                          "likelihood is too irregular for intervals (try intervals wald)",
                          parameters=("intervals",))
+    u_written, moved = boundary.sensitivity_inside(fit)
+    written = fit.space.natural(u_written)
     warnings += edge_warnings(fit.space.free_params, fit.optimum.at_lower, fit.optimum.at_upper,
-                              fit.family.name) + notes
-    if sp_free and sp == 1.0:
-        warnings.append(f"no false positive in {data.specificity_counts()[0]} readouts: the "
-                        "specificity is estimated at 1, so decode treats every positive readout "
-                        f"as proof of a positive member (the {100 * level:g}% lower limit is "
-                        f"{sp_lo:.4g}; fix a value with --fix specificity=... if that is too "
-                        "strong)")
+                              fit.family.name,
+                              written={name: written[name] for name in moved}) + notes
+    sp_written = sp
+    if sp_free and sp in (0.0, 1.0):
+        n0, neg0 = data.specificity_counts()
+        sp_written = boundary.specificity_inside(neg0, n0)
+        warnings.append(f"{'no false positive' if sp == 1.0 else 'no negative readout'} in "
+                        f"{n0} readouts of pools without a positive member: the "
+                        f"maximum-likelihood specificity is {sp:g}, which the data do not show "
+                        f"with certainty, so the assay file gets {sp_written:.6g}, the "
+                        f"{boundary.RULE_SPECIFICITY} (the {100 * level:g}% interval is "
+                        f"{sp_lo:.4g} to {sp_hi:.4g}; fix a value with --fix specificity=... to "
+                        "choose another)")
     if fit.family.name == "table":
         warnings += _table_gaps(fit)
 
     values = fit.values
     rows = [{"parameter": "specificity", "estimate": sp, "lower": sp_lo, "upper": sp_hi,
-             "interval": INTERVAL_NAMES[sp_method], "fixed": not sp_free}]
+             "interval": INTERVAL_NAMES[sp_method], "fixed": not sp_free, "written": sp_written,
+             "rule": boundary.RULE_SPECIFICITY if sp_written != sp else ""}]
     for p in fit.space.params:
         if p.name in fit.space.fixed:
             v = fit.space.fixed[p.name]
             rows.append({"parameter": p.name, "estimate": v, "lower": v, "upper": v,
-                         "interval": "fixed", "fixed": True})
+                         "interval": "fixed", "fixed": True, "written": v, "rule": ""})
         else:
             lo, hi = limits[p.name]
             rows.append({"parameter": p.name, "estimate": values[p.name], "lower": lo, "upper": hi,
-                         "interval": INTERVAL_NAMES[intervals], "fixed": False})
+                         "interval": INTERVAL_NAMES[intervals], "fixed": False,
+                         "written": written[p.name],
+                         "rule": boundary.RULE_SENSITIVITY if p.name in moved else ""})
     parameters = pd.DataFrame(rows)
 
     fitted = np.where(cells_all.d > 0, fit.fitted(cells_all.k, np.maximum(cells_all.d, 1)),
@@ -350,7 +374,7 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
                                                           refit, gof_draws, rng)
         goodness["bootstrap_draws"] = int(gof_draws)
     loglik = ll_sp + fit.loglik
-    assay = Assay(sp, fit.family.sensitivity(values))
+    assay = Assay(sp_written, fit.family.sensitivity(written))
     frame = cell_frame(cells_all, fitted, level)
     curve = None
     if fit.family.name in ("constant", "dilution"):
@@ -361,7 +385,10 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
                          extra={"rows_skipped": data.skipped} if data.skipped else {})
     names = [("logit " if p.scale == "logit" else "log ") + p.name for p in fit.space.free_params]
     result.covariance = pd.DataFrame(cov, index=names, columns=names)
-    result.assay = Assay(sp, assay.sensitivity, fit_details(result))
+    details = fit_details(result)
+    details["uncertainty"] = boundary.spread(
+        fit, u_written, data.specificity_counts()[::-1] if sp_free else None)
+    result.assay = Assay(sp_written, assay.sensitivity, details)
     return result
 
 
@@ -402,6 +429,9 @@ def fit_details(result: Calibration) -> dict:
     for row in result.parameters.itertuples(index=False):
         entry = {"estimate": float(row.estimate), "lower": float(row.lower),
                  "upper": float(row.upper), "interval": str(row.interval)}
+        if getattr(row, "rule", ""):  # moved off the edge: the value in the file, and why
+            entry["written"] = float(row.written)
+            entry["rule"] = str(row.rule)
         table[str(row.parameter)] = entry
     out["estimates"] = table
     if result.goodness is not None:

@@ -63,10 +63,16 @@ def maximize(objective, starts, bounds, jac: bool = True, fisher=None, local=Non
     if best_res is None:
         # scoring found the basin from each start; scipy's trust-region Newton method (with the
         # information as curvature) confirms the optimum, and scoring keeps it within the bounds
-        with np.errstate(over="ignore", invalid="ignore"):
-            best_res = optimize.minimize(objective, best_u, jac=True, hess=fisher,
-                                         method="trust-exact",
-                                         options={"gtol": 1e-9, "maxiter": 200, **(options or {})})
+        try:
+            with np.errstate(over="ignore", invalid="ignore"):
+                best_res = optimize.minimize(objective, best_u, jac=True, hess=fisher,
+                                             method="trust-exact",
+                                             options={"gtol": 1e-9, "maxiter": 200,
+                                                      **(options or {})})
+        except ValueError:  # the information is not finite on the way (a rate run to 0 or 1):
+            best_res = optimize.OptimizeResult(x=best_u, success=True, nfev=0,  # scoring stands
+                                               message="scoring optimum (trust-region step "
+                                               "met a non-finite information)")
         evaluations += int(best_res.nfev)
         u, f = local(np.clip(best_res.x, lo, hi))
         if f <= best_f:

@@ -103,6 +103,8 @@ class Calibration:
             params[row.parameter] = {"estimate": row.estimate, "lower": row.lower,
                                      "upper": row.upper, "interval": row.interval,
                                      "fixed": bool(row.fixed)}
+            if getattr(row, "rule", ""):  # on the edge: the value written instead, and why
+                params[row.parameter].update(written=row.written, rule=row.rule)
         out = {"kind": self.kind, "model": self.model, "assay": self.assay.to_dict(),
                "parameters": params, "level": self.level,
                "log_likelihood": self.log_likelihood, "n_params": self.n_params,
@@ -128,6 +130,8 @@ class Calibration:
             how = "fixed" if row.fixed else row.interval
             lines.append(f"  {row.parameter:<14} {_fmt(row.estimate):>10}   "
                          f"[{_fmt(row.lower)}, {_fmt(row.upper)}]  ({how})")
+            if getattr(row, "rule", ""):
+                lines.append(f"  {'':<14} written as {row.written:.6g}: {row.rule}")
         lines.append(f"  log-likelihood {self.log_likelihood:.4f}, {self.n_params} fitted "
                      f"parameters, AIC {self.aic:.3f}")
         g = self.goodness

@@ -31,8 +31,12 @@ __all__ = ["decode", "Posterior", "METHODS", "EXACT_LIMIT", "EXACT_BUDGET", "com
            "Components", "choose_decoders", "fallback_decoder", "PART_DECODERS", "DecodedPart"]
 
 # auto: total work allowed for exact enumeration, in state updates (2^m * (m + 1) per component of
-# m samples); about a second or two on one core. Components past it, or above EXACT_LIMIT, go to BP.
+# m samples); about a second or two on one core. Tree-shaped components past it go to BP (exact on
+# trees). Loopy components of at most EXACT_LIMIT samples have their own, larger budget: each is
+# enumerated whatever the rest of the run holds, up to LOOPY_BUDGET in all (2^36 state updates,
+# about a minute or two on one core; a run of 60 groups of 20 needs 1.3e9, a second or two).
 EXACT_BUDGET = 2.0 ** 30
+LOOPY_BUDGET = 2.0 ** 36
 
 
 def _check_pools_possible(run: Run, lik_ptr, loglik):
@@ -158,6 +162,7 @@ class DecoderChoice:
 
     method: np.ndarray  # object array (n_components,)
     text: str
+    tree: np.ndarray | None = None  # auto: tree-shaped components (where BP is exact)
 
     def components(self, name: str) -> np.ndarray:
         return np.flatnonzero(self.method == name).astype(np.int64)
@@ -183,13 +188,16 @@ def exact_cost(sizes: np.ndarray) -> np.ndarray:
 
 
 def choose_decoders(run: Run, comps: Components, method: str, exact_limit: int = EXACT_LIMIT,
-                    budget: float = EXACT_BUDGET) -> DecoderChoice:
+                    budget: float = EXACT_BUDGET, loopy_budget: float = LOOPY_BUDGET
+                    ) -> DecoderChoice:
     """Decoder per component.
 
-    A named method decodes every component. ``auto`` enumerates exactly every component of at most
-    ``exact_limit`` samples while the summed cost 2^m (m + 1) stays within ``budget``, loopy
-    components first (BP is only approximate there) and cheapest first; the rest go to BP, which is
-    exact on tree-shaped components and approximate on loopy ones.
+    A named method decodes every component. ``auto`` enumerates exactly every loopy component of at
+    most ``exact_limit`` samples, cheapest first, while their summed cost 2^m (m + 1) stays within
+    ``loopy_budget`` (BP is only approximate there, and one group's size does not take another's
+    turn); tree-shaped components are enumerated within ``budget`` and otherwise go to BP, which is
+    exact on trees. Loopy components left to BP (above the limit, or past the loopy budget) are
+    approximate: the posterior marks their specimens ``bp-loopy``.
     """
     n_comp = comps.n_components
     if method != "auto":
@@ -199,11 +207,11 @@ def choose_decoders(run: Run, comps: Components, method: str, exact_limit: int =
                              f"{method} for all {n_comp} group(s) of linked samples")
     sizes, tree = component_shape(run, comps)
     cost = exact_cost(sizes)
-    eligible = np.flatnonzero(sizes <= exact_limit)
-    order = eligible[np.lexsort((cost[eligible], tree[eligible]))]
-    within = np.cumsum(cost[order]) <= budget
     choice = np.full(n_comp, "bp", dtype=object)
-    choice[order[within]] = "exact"
+    for shape, allowed in ((~tree, loopy_budget), (tree, budget)):
+        eligible = np.flatnonzero((sizes <= exact_limit) & shape)
+        order = eligible[np.argsort(cost[eligible], kind="stable")]
+        choice[order[np.cumsum(cost[order]) <= allowed]] = "exact"
     ex = choice == "exact"
     parts = []
     if ex.any():
@@ -214,13 +222,17 @@ def choose_decoders(run: Run, comps: Components, method: str, exact_limit: int =
         why = []
         if (big > exact_limit).any():
             why.append(f"{int((big > exact_limit).sum())} above {exact_limit} samples")
-        if (big <= exact_limit).any():
-            why.append(f"{int((big <= exact_limit).sum())} past the enumeration budget of "
-                       f"{budget:.3g} state updates")
+        over = (~ex) & (sizes <= exact_limit)
+        if over.any():
+            why.append(f"{int((over & tree).sum())} tree-shaped past the enumeration budget of "
+                       f"{budget:.3g} state updates, {int((over & ~tree).sum())} loopy past the "
+                       f"loopy budget of {loopy_budget:.3g}")
         parts.append(f"bp for {int((~ex).sum())} group(s) of {int(big.sum())} samples (largest "
                      f"{int(big.max())}; {'; '.join(why)}; {n_tree} tree-shaped, where BP is "
-                     "exact)")
-    return DecoderChoice(choice, "auto: " + ", ".join(parts) if parts else "auto: nothing to do")
+                     f"exact, {int((~ex).sum()) - n_tree} loopy, where it is approximate: "
+                     "method bp-loopy)")
+    return DecoderChoice(choice, "auto: " + ", ".join(parts) if parts else "auto: nothing to do",
+                         tree)
 
 
 # ---- the entry point
@@ -370,6 +382,11 @@ def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, l
     for part in parts:  # a fallback part comes after the part it corrects, and overrides it
         prob[part.samples] = part.probability[part.samples]
         sample_method[part.samples] = part.method
+        if part.method == "bp" and choice.tree is not None:  # auto: where BP stays approximate
+            loopy = part.components[~choice.tree[part.components]]
+            if len(loopy):
+                sample_method[_samples_of(comps, loopy)] = "bp-loopy"
+    # specimens re-decoded by a later part (a fallback) were set again above, in order
     final = [p for p in parts if (choice.method[p.components] == p.method).any()]
     log_evidence = dist = None
     if all(p.log_z is not None for p in final):
@@ -392,6 +409,7 @@ def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, l
                                     "samples": int(sizes[choice.method == m].sum())}
                                 for m in names}}
     diagnostics["converged"] = _overall_converged(parts, choice)
+    diagnostics["bp_loopy_samples"] = int((sample_method == "bp-loopy").sum())
     bp = next((p for p in parts if p.method == "bp"), None)
     if bp is not None:
         diagnostics["bp"] = bp.diagnostics
@@ -407,6 +425,10 @@ def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, l
     if groups is not None:  # joint answers of the sampler's part, where the report looks
         diagnostics["ambiguity_groups"] = groups
     warnings = list(run.notes) + [w for p in parts for w in p.warnings]
+    if diagnostics["bp_loopy_samples"]:
+        warnings.append(f"{diagnostics['bp_loopy_samples']} sample(s) in loopy groups too large "
+                        "to enumerate were decoded by belief propagation, which is approximate "
+                        "there even when it converges (method bp-loopy)")
     return Posterior(run.sample_ids, prob, run.prior, "+".join(names) or "exact", sample_method,
                      lo, hi, log_evidence=log_evidence, mcse=mcse, count_distribution=dist,
                      draws=draws, diagnostics=diagnostics, columns=sample_columns(run),

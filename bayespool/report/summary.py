@@ -123,8 +123,12 @@ def fit_html(details: Mapping) -> str:
     estimates = details.pop("estimates", None)
     warnings = details.pop("warnings", None)
     comparison = details.pop("comparison", None)
+    uncertainty = details.pop("uncertainty", None)
     if details:
         parts.append(kv_table(details))
+    if isinstance(uncertainty, Mapping) and uncertainty:
+        parts.append(el("h4", "Uncertainty of the fit (what --assay-uncertainty averages over)") +
+                     kv_table(_uncertainty_facts(uncertainty)))
     if isinstance(estimates, Mapping) and estimates:
         frame = pd.DataFrame([{"parameter": k, **(v if isinstance(v, Mapping) else {"estimate": v})}
                               for k, v in estimates.items()])
@@ -135,6 +139,19 @@ def fit_html(details: Mapping) -> str:
         parts.append(el("h4", "Warnings of the fit") + el(
             "ul", "".join(el("li", text(w)) for w in warnings), class_="plain"))
     return "".join(parts)
+
+
+def _uncertainty_facts(uncertainty: Mapping) -> dict:
+    """The ``[fit.uncertainty]`` table in short: its parameters, not its hundreds of draws."""
+    out = {}
+    for key, value in uncertainty.items():
+        if key == "sensitivity_draws":
+            out[key] = f"{len(value)} draws"
+        elif isinstance(value, (list, tuple)):
+            out[key] = ", ".join(str(v) for v in value)
+        else:
+            out[key] = value
+    return out
 
 
 FIT_TABLES = ("estimates", "warnings", "comparison", "goodness_of_fit")

@@ -1,7 +1,8 @@
 """Bounded, thinned storage of what the chains record: batch means for diagnostics, kept draws.
 
-Two buffers per chain, each of fixed capacity: Rao-Blackwell batch means of the watched specimens
-(float32; the mean of the conditional probabilities over ``bm_stride`` sweeps) and joint draws of
+Two buffers per chain, each of fixed capacity: batch means of the watched specimens (float32; for
+each, the mean of its conditional probabilities over ``bm_stride`` sweeps, the Rao-Blackwell
+column, and the mean of its sampled status, the indicator column, m columns apart) and joint draws of
 the statuses (uint8, every ``dr_stride`` sweeps) with the shared prevalence. When a buffer is full it
 is halved (adjacent batch means averaged, every other draw dropped) and its stride doubled, so memory
 stays bounded however long the run and the rows always cover the whole recording window evenly:
@@ -29,8 +30,8 @@ class Trace:
         self.n_sampled = n_sampled
         self.rb = np.zeros((n_chains, n_sampled))
         self.hist = np.zeros((n_chains, n_sampled + 1), dtype=np.int64)
-        self.batch = np.zeros((n_chains, m))
-        self.bm_buf = np.zeros((n_chains, self.batch_capacity, m), dtype=np.float32)
+        self.batch = np.zeros((n_chains, 2 * m))  # Rao-Blackwell columns, then indicator columns
+        self.bm_buf = np.zeros((n_chains, self.batch_capacity, 2 * m), dtype=np.float32)
         self.bm_count = np.zeros(n_chains, dtype=np.int64)
         self.bm_stride = 1
         self.dr_x = np.zeros((n_chains, self.draw_capacity, n_sampled), dtype=np.uint8)
@@ -48,10 +49,12 @@ class Trace:
         """Follow more specimens from now on: their rows start after the batch in progress."""
         more = np.asarray(more, dtype=np.int64)
         m0, m1 = len(self.watched), len(self.watched) + len(more)
-        buf = np.zeros((self.n_chains, self.batch_capacity, m1), dtype=np.float32)
-        buf[:, :, :m0] = self.bm_buf
-        batch = np.zeros((self.n_chains, m1))
-        batch[:, :m0] = self.batch
+        buf = np.zeros((self.n_chains, self.batch_capacity, 2 * m1), dtype=np.float32)
+        buf[:, :, :m0] = self.bm_buf[:, :, :m0]
+        buf[:, :, m1:m1 + m0] = self.bm_buf[:, :, m0:]
+        batch = np.zeros((self.n_chains, 2 * m1))
+        batch[:, :m0] = self.batch[:, :m0]
+        batch[:, m1:m1 + m0] = self.batch[:, m0:]
         self.bm_buf, self.batch = buf, batch
         self.first_row = np.concatenate([self.first_row,
                                          np.full(len(more), int(self.bm_count[0]) + 1)])
@@ -75,8 +78,12 @@ class Trace:
 
     # ---- views
     def batch_means(self) -> np.ndarray:
-        """(chains, rows, watched) batch means recorded so far."""
-        return self.bm_buf[:, :int(self.bm_count[0])]
+        """(chains, rows, watched) Rao-Blackwell batch means recorded so far."""
+        return self.bm_buf[:, :int(self.bm_count[0]), :len(self.watched)]
+
+    def indicator_means(self) -> np.ndarray:
+        """(chains, rows, watched) batch means of the sampled statuses."""
+        return self.bm_buf[:, :int(self.bm_count[0]), len(self.watched):]
 
     def draws(self) -> np.ndarray:
         """(chains, rows, sampled) kept joint draws."""

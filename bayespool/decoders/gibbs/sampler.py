@@ -10,8 +10,16 @@ Memory is bounded: diagnostics follow the specimens that can still be undecided 
 they fit the budget; otherwise those whose pilot estimates are near a threshold, and any other from
 the moment it drifts there), and draws are thinned to a few thousand.
 
-The diagnostics are computed on batch means of the Rao-Blackwellised probabilities, so the ESS
-counts effective batches (a conservative figure: at most about four per batch row).
+The diagnostics are computed on batch means, so the ESS counts effective batches (a conservative
+figure: at most about four per batch row), and twice: on the Rao-Blackwellised probabilities and on
+the sampled statuses (the indicator). The reported MCSE is the larger of the two, never below the
+binomial standard error sqrt(p (1 - p) / draws); R-hat the larger, ESS the smaller. The
+Rao-Blackwellised average alone is blind to states the chain has not visited: a specimen whose
+conditional probability is the same in every visited state gets a spread of 0 although its estimate
+misses the rare states where it differs (one positive pool of 500 members: every member's
+conditional probability is the prior whenever another member is positive, and only the rarely
+visited state "no other member positive" lifts it). The indicator varies whenever the specimen's
+status does, so its error shows what was not explored.
 """
 from __future__ import annotations
 
@@ -42,6 +50,7 @@ MEMORY_BUDGET = 256 * 2**20  # bytes for the trace buffers
 BATCH_CAPACITY = 256  # batch-mean rows per chain at least (halved when full)
 _CHUNK = 2048  # specimens per diagnostics call
 _BAND = 5.0  # large runs watch specimens within a factor 5 of a threshold's tail
+_ROW_BYTES = 8  # per watched specimen and batch row: two float32 means (probability, indicator)
 
 
 @dataclass
@@ -111,7 +120,7 @@ class GibbsSampler:
     def _batch_rows(self, n_watched: int) -> int:
         """Rows per chain: enough that half of them over all chains can show the ESS target."""
         want = max(BATCH_CAPACITY, int(np.ceil(4 * self.ess_target / self.chains)))
-        per_row = max(1, n_watched) * self.chains * 4
+        per_row = max(1, n_watched) * self.chains * _ROW_BYTES
         return int(max(16, min(want, (self.budget // 2) // per_row)))
 
     def sample(self, seed=None, warmup: int = WARMUP, min_sweeps: int = MIN_SWEEPS,
@@ -148,7 +157,7 @@ class GibbsSampler:
         self._repair(state, notes)
 
         # which specimens to follow
-        fits = n_order * C * 4 * 64 <= self.budget // 2
+        fits = n_order * C * _ROW_BYTES * 64 <= self.budget // 2
         if fits:
             watched = np.arange(n_order)
         else:
@@ -236,7 +245,8 @@ class GibbsSampler:
         more = self._near_threshold(trace, trace.watched, lo, hi)
         if not len(more):
             return
-        room = (self.budget // 2) // (self.chains * trace.batch_capacity * 4) - len(trace.watched)
+        room = (self.budget // 2) // (self.chains * trace.batch_capacity * _ROW_BYTES) \
+            - len(trace.watched)
         if room < len(more):
             self.unfollowed = max(self.unfollowed, len(more) - max(0, room))
             more = more[:max(0, room)]
@@ -264,7 +274,7 @@ class GibbsSampler:
                    ((cw > hi).any(axis=0) & (cw <= hi).any(axis=0))
         crit = np.flatnonzero(undecided | straddle)
         out = {"criterion": w[crit]}
-        out["rhat"], out["ess"], _ = _diagnose(trace, crit, with_mcse=False)
+        out["rhat"], out["ess"], _ = _diagnose(trace, crit, pw[crit])
         out["converged"] = bool(self.unfollowed == 0 and (out["rhat"] <= rhat_target).all()
                                 and (out["ess"] >= ess_target).all())
         return out
@@ -279,9 +289,11 @@ class GibbsSampler:
         e_all = np.full(n_order, np.nan)
         if C > 1:
             err = per_chain.std(axis=0, ddof=1) / np.sqrt(C)
+        # never below the binomial standard error of a proportion over every recorded draw
+        err = np.fmax(err, _binomial_se(prob, C * trace.sweeps))
         w = trace.watched
         if len(w):
-            r_all[w], e_all[w], werr = _diagnose(trace, np.arange(len(w)), with_mcse=True)
+            r_all[w], e_all[w], werr = _diagnose(trace, np.arange(len(w)), prob[w])
             err[w] = np.where(np.isfinite(werr), werr, err[w])
         hist = trace.hist.sum(axis=0)
         dist = hist / hist.sum()
@@ -337,13 +349,15 @@ class GibbsSampler:
                            prevalence, diag)
 
 
-def _diagnose(trace: Trace, cols: np.ndarray, with_mcse: bool):
-    """R-hat, bulk ESS (and MCSE) of watched columns ``cols`` from their valid batch-mean rows.
+def _diagnose(trace: Trace, cols: np.ndarray, prob: np.ndarray):
+    """R-hat, bulk ESS and MCSE of watched columns ``cols`` (estimates ``prob``).
 
-    Columns followed from a later row are grouped by that row; fewer than 8 valid rows give NaN
-    (not converged).
+    Each is computed on the Rao-Blackwell batch means and on the indicator batch means; R-hat is
+    the larger, ESS the smaller and the MCSE the larger, the indicator's never below the binomial
+    standard error of ``prob`` over the draws used. Columns followed from a later row are grouped by
+    that row; fewer than 8 valid rows give NaN (not converged).
     """
-    bm = trace.batch_means()
+    bm, ind = trace.batch_means(), trace.indicator_means()
     r = np.full(len(cols), np.nan)
     e = np.full(len(cols), np.nan)
     err = np.full(len(cols), np.nan)
@@ -352,13 +366,24 @@ def _diagnose(trace: Trace, cols: np.ndarray, with_mcse: bool):
         group = np.flatnonzero(first == f)
         if bm.shape[1] - f < 8:
             continue
+        draws = trace.n_chains * (bm.shape[1] - f) * trace.bm_stride
         for start in range(0, len(group), _CHUNK):  # bounded temporary memory
             pick = group[start:start + _CHUNK]
             sub = bm[:, f:, cols[pick]].astype(float)
-            r[pick], e[pick] = rhat_ess(sub)
-            if with_mcse:
-                err[pick] = mcse(sub)
+            sub_ind = ind[:, f:, cols[pick]].astype(float)
+            r_rb, e_rb = rhat_ess(sub)
+            r_ind, e_ind = rhat_ess(sub_ind)
+            r[pick] = np.fmax(r_rb, r_ind)
+            e[pick] = np.fmin(e_rb, e_ind)
+            floor = _binomial_se(prob[pick], draws)
+            err[pick] = np.fmax(mcse(sub), np.fmax(mcse(sub_ind), floor))
     return r, e, err
+
+
+def _binomial_se(p, n):
+    """sqrt(p (1 - p) / n): the error of a proportion over n independent draws."""
+    p = np.clip(np.asarray(p, dtype=float), 0.0, 1.0)
+    return np.sqrt(p * (1.0 - p) / max(1, n))
 
 
 def _fmt(value, spec):

@@ -24,9 +24,12 @@ def site_sweep(sample_ptr, sample_pools, lik_ptr, delta, base_logit, shift, x, d
     ``cur[t, x_i]`` holds pool t's term for a member with status x_i (see state.set_count), so an
     update reads one cached value per pool and touches the tables only when a status changes.
     When ``record`` is true, adds each conditional probability to ``rb[i]`` and, for watched
-    specimens (``watch[i] >= 0``), to ``batch[watch[i]]``.
+    specimens (``watch[i] >= 0``), to ``batch[watch[i]]`` and the sampled status to
+    ``batch[m + watch[i]]`` (m watched specimens: the indicator's diagnostics, which see what the
+    conditional probability alone hides when the chain has not explored a rare state).
     """
     change = 0
+    m = len(batch) // 2
     s0, s1 = rng[0], rng[1]  # the random state stays in registers during the sweep
     for i in range(len(x)):
         xi = x[i]
@@ -48,6 +51,7 @@ def site_sweep(sample_ptr, sample_pools, lik_ptr, delta, base_logit, shift, x, d
             w = watch[i]
             if w >= 0:
                 batch[w] += p
+                batch[m + w] += new
     rng[0], rng[1] = s0, s1
     return change
 
