@@ -127,6 +127,19 @@ CASES = {
 }
 
 
+# Dorfman's two stages: a pool of four and every member's own test (a star group, decoded by
+# bayespool.decoders.ct_star in one pass over the members instead of 2^4 tensor integrals)
+STAR = {"P": ["a", "b", "c", "d"], "Ia": ["a"], "Ib": ["b"], "Ic": ["c"], "Id": ["d"]}
+CASES.update({
+    "star-one": (STAR, [("P", "positive", "31.0"), ("Ia", "positive", "28.2"),
+                        ("Ib", "negative", ""), ("Ic", "negative", ""), ("Id", "positive", "")],
+                 0.1),
+    "star-two": (STAR, [("P", "positive", "27.5"), ("P", "positive", "27.9"),
+                        ("Ia", "positive", "26.0"), ("Ib", "positive", "27.0"),
+                        ("Id", "negative", "")], 0.1),
+})
+
+
 @pytest.mark.parametrize("case", sorted(CASES))
 def test_exact_ct_against_brute_force(assay, case):
     pools, readouts, prior = CASES[case]
@@ -139,6 +152,36 @@ def test_exact_ct_against_brute_force(assay, case):
         if p > 0.05 and not np.isnan(frame.loc[s, "ct_mean"]):
             assert frame.loc[s, "ct_mean"] == pytest.approx(want_ct[s], abs=0.05), s
     assert post.diagnostics["ct"]["ignores_shared_ct"] is False
+
+
+def test_star_groups_take_the_one_pass_path_and_agree_with_the_tensor_integrals(assay):
+    # the same group through the general enumeration (every state's Cts integrated on a tensor
+    # grid, bayespool.decoders.ct_exact) and through the star pass: probabilities, evidence,
+    # count distribution and Ct posteriors agree
+    from bayespool.ct_evidence import PoolCtStats
+    from bayespool.decoders.ct_exact import ct_summary, decode_group, exact_grid
+    from bayespool.decoders.ct_star import decode_star, star_hub
+    from bayespool.decoders.graph import components
+    for case in ("star-one", "star-two"):
+        pools, readouts, prior = CASES[case]
+        run = make_run(pools, readouts, prior)
+        ptr, loglik = run.log_likelihood(assay)
+        comps = components(run)
+        stats = PoolCtStats.from_run(run, assay.ct)
+        nodes, _ = exact_grid(assay.ct)
+        samples, group = comps.samples_of(0), comps.pools_of(0)
+        hub = star_hub(run, samples, group)
+        assert hub is not None and run.pool_ids[group[hub]] == "P"
+        a = decode_group(assay.ct, run, stats, samples, group, ptr, loglik, nodes, joint_limit=4)
+        b = decode_star(assay.ct, run, stats, samples, group, hub, ptr, loglik, nodes)
+        np.testing.assert_allclose(b[0], a[0], atol=2e-5)
+        assert b[2] == pytest.approx(a[2], abs=1e-4)
+        np.testing.assert_allclose(b[3], a[3], atol=2e-5)
+        for j in np.flatnonzero(a[0] > 0.01):
+            np.testing.assert_allclose(ct_summary(nodes, b[1][j]), ct_summary(nodes, a[1][j]),
+                                       atol=0.01)
+    post = decode(make_run(*CASES["star-one"]), assay, method="auto")
+    assert post.diagnostics["decoders"]["exact"]["components"] == 1
 
 
 def test_ct_separates_array_crossings(assay):

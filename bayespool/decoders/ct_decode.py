@@ -21,9 +21,11 @@ from ..ct import _logsumexp
 from ..ct_evidence import PoolCtStats
 from .ct_exact import (CT_EXACT_LIMIT, JOINT_LIMIT, ct_summary, decode_group, exact_grid,
                        grid_step)
+from .ct_star import decode_star, star_hub
 
 # auto: total states enumerated jointly with Ct integrals (a Python loop over states)
 CT_STATE_BUDGET = 1 << 15
+STAR_LIMIT = 64         # star groups (a pool and its members' own tests) decoded exactly up to this
 CT_GIBBS_LIMIT = 5000   # auto: shared groups up to this many specimens go to the Ct sampler
 GIBBS_SWEEPS = (2000, 16000)  # first and largest sweeps per chain (doubled until R-hat and ESS pass)
 SHARED_NOTE = ("belief propagation on per-pool Ct likelihoods ignores that a specimen's Ct is "
@@ -41,6 +43,20 @@ def shared_components(run, comps) -> np.ndarray:
     return shared
 
 
+def star_components(run, comps) -> np.ndarray:
+    """Per component: one read pool holds every specimen and every other read pool one
+    (Dorfman's stages), decoded exactly by :mod:`bayespool.decoders.ct_star` up to
+    :data:`STAR_LIMIT` specimens."""
+    n = comps.n_components
+    label = np.repeat(np.arange(n), np.diff(comps.pool_ptr))
+    size = run.pool_size[comps.pools]
+    big = size > 1
+    n_big = np.bincount(label[big], minlength=n)
+    big_size = np.zeros(n, dtype=np.int64)
+    big_size[label[big]] = size[big]
+    return (n_big == 1) & (big_size == comps.sizes) & (comps.sizes <= STAR_LIMIT)
+
+
 def ct_choice(run, comps, method: str, choice):
     """Adjust the binary decoder choice for a Ct assay; returns (choice, notes).
 
@@ -49,10 +65,11 @@ def ct_choice(run, comps, method: str, choice):
     states stays within :data:`CT_STATE_BUDGET`, the rest to belief propagation.
     """
     shared = shared_components(run, comps)
+    star = shared & star_components(run, comps)
     sizes = comps.sizes
     notes = []
     if method == "exact":
-        big = shared & (sizes > CT_EXACT_LIMIT)
+        big = shared & ~star & (sizes > CT_EXACT_LIMIT)
         if big.any():
             from ..errors import InputError
             raise InputError(f"a group of {int(sizes[big].max())} specimens linked through shared "
@@ -61,7 +78,8 @@ def ct_choice(run, comps, method: str, choice):
     if method == "gibbs":
         choice.method[:] = "gibbs"
     if method == "auto":
-        cand = np.flatnonzero(shared & (sizes <= CT_EXACT_LIMIT))
+        choice.method[star] = "exact"
+        cand = np.flatnonzero(shared & ~star & (sizes <= CT_EXACT_LIMIT))
         cand = cand[np.argsort(sizes[cand], kind="stable")]
         within = np.cumsum(np.exp2(sizes[cand].astype(float))) <= CT_STATE_BUDGET
         choice.method[cand[within]] = "exact"
@@ -100,9 +118,14 @@ def ct_exact_part(run, lik_ptr, loglik, comps, selected, options):
         nodes, log_w = exact_grid(model)
         cols = options["ct_columns"]
         for c in joint:
-            samples = comps.samples_of(int(c))
-            pr, marg, lz, counts, om = decode_group(model, run, stats, samples, comps.pools_of(int(c)),
-                                            lik_ptr, loglik, nodes)
+            samples, pools = comps.samples_of(int(c)), comps.pools_of(int(c))
+            hub = star_hub(run, samples, pools)
+            if hub is not None:
+                pr, marg, lz, counts, om = decode_star(model, run, stats, samples, pools, hub,
+                                                       lik_ptr, loglik, nodes)
+            else:
+                pr, marg, lz, counts, om = decode_group(model, run, stats, samples, pools,
+                                                        lik_ptr, loglik, nodes)
             prob[samples] = pr
             log_z[np.searchsorted(selected, c)] = lz
             omitted += om
