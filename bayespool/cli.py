@@ -976,6 +976,10 @@ def _run_calibrate_ct(args, table):
     from .calibration.ct_fit import calibrate_ct
     result = calibrate_ct(table, cutoff=args.ct_cutoff)
     result.assay.write(args.out)
+    if args.report:
+        from .report import write_report
+        write_report(args.report, assay=result.assay, calibration=result,
+                     title="bayespool calibration report", audit=_audit(args))
     if args.json:
         summary = result.summary()
         summary["out"] = args.out

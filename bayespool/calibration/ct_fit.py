@@ -41,6 +41,7 @@ class CtCalibration:
     bic: dict                # number of components -> BIC
     readouts: int
     warnings: list = field(default_factory=list)
+    points: object = None    # the one-positive readouts: pool_size, individual_ct, ct (NaN = none)
 
     def summary(self) -> dict:
         return {"kind": "validation with Ct", "readouts": self.readouts,
@@ -208,5 +209,17 @@ def calibrate_ct(table, *, cutoff: float = 40.0):
     if not s[1] <= 1.0 <= s[2]:
         warnings.append(f"cycles_per_doubling {s[0]:.3f} [{s[1]:.3f}, {s[2]:.3f}] excludes 1 "
                         "(100 % amplification efficiency)")
-    assay = Assay(float(sp), CtSensitivity(model))
-    return CtCalibration(assay, est, len(w), bics, int(keep.sum()), warnings)
+    details = {"method": "validation", "model": "ct", "readouts_used": int(keep.sum()),
+               "mixture_components": len(w), "mixture_selection": "BIC",
+               "estimates": {name: {"estimate": float(v[0]), "lower": float(v[1]),
+                                    "upper": float(v[2]),
+                                    "interval": "Clopper-Pearson" if name == "specificity"
+                                    else "Wald"} for name, v in est.items()}}
+    if warnings:
+        details["warnings"] = list(warnings)
+    if getattr(table, "path", None):
+        details["source_validation"] = str(table.path)
+    assay = Assay(float(sp), CtSensitivity(model), details)
+    import pandas as pd
+    points = pd.DataFrame({"pool_size": k[one], "individual_ct": ind[one], "ct": y[one]})
+    return CtCalibration(assay, est, len(w), bics, int(keep.sum()), warnings, points)

@@ -36,6 +36,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
     from .bench import controls_section, destinations_section
     from .calibration import calibration_section, observed_points
     from .calls import calls_section, map_section
+    from .ct import ct_calibration_section, ct_section
     from .expectations import expectations_section
     from .groups import groups_section
     from .page import page
@@ -76,6 +77,8 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         add("ambiguity", "Ambiguity", groups_section(posterior, run))
         add("why", "Why", why_section(posterior, run))
         add("positives", "Positives", positives_section(posterior))
+    if assay is not None:
+        add("ct", "Ct evidence", ct_section(run, assay, posterior))
     if plan is not None:
         add("plan", "Next pools", plan_section(plan, posterior))
     add("destinations", "Destination plates", destinations_section(worklist))
@@ -84,6 +87,7 @@ def build_report(run=None, assay=None, posterior=None, plan=None, calibration=No
         add("assay", "Assay", assay_section(assay, run, points, shown_elsewhere=shown))
     if calibration is not None:
         add("calibration", "Calibration", calibration_section(calibration, cells))
+        add("ct-calibration", "Ct calibration", ct_calibration_section(calibration))
 
     if created is None:
         created = datetime.now(timezone.utc)
