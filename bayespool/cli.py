@@ -974,7 +974,7 @@ def _add_calibrate(sub):
 def _run_calibrate_ct(args, table):
     """A validation file with Cts: fit the [ct] load model (bayespool.calibration.ct_fit)."""
     from .calibration.ct_fit import calibrate_ct
-    result = calibrate_ct(table, cutoff=args.ct_cutoff)
+    result = calibrate_ct(table, cutoff=args.ct_cutoff, level=args.level)
     result.assay.write(args.out)
     if args.report:
         from .report import write_report

@@ -1,8 +1,12 @@
 """The built-in demonstration: an invented two-stage screening run, decoded end to end.
 
 All data here is invented for the demonstration (see datasets/demo/README.md); it is not a check of
-anything. Three plates of 96 specimens at an invented prevalence of 3% are pooled in eights on an
-assay whose sensitivity falls with dilution; positive pools are followed by individual tests.
+anything. Three plates of 96 specimens at an invented prevalence of 3% are pooled in eights and read
+by an invented qPCR assay that reports a cycle threshold (Ct) for every readout that amplifies;
+positive pools are followed by individual tests. The readouts follow the Ct load model of
+:mod:`bayespool.ct` (a positive specimen's invented individual Ct, shared by its pools, diluted
+log2 8 = 3 cycles in its pool), so the demo fits that model from an invented validation set with
+Cts and decodes the run with it.
 """
 from __future__ import annotations
 
@@ -12,43 +16,60 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .assay import Assay, DilutionSensitivity
+from .assay import Assay
+from .ct import CtModel, CtSensitivity
 from .decoders import decode
 from .decoders.posterior import Posterior
 from .io import write_frame
 from .run import Run
 
 DEMO_SEED = 20261201
-DEMO_ASSAY = Assay(0.995, DilutionSensitivity(se_max=0.97, r50=40.0, slope=1.2))
+# the invented assay: individual Ct of a positive ~ 0.65 N(29, 3^2) + 0.35 N(23, 2^2), 100 %
+# efficiency (1 cycle per doubling), readout noise sd 0.5 cycles, 2 % of readouts of a pool with
+# target fail to amplify, cutoff 40, false amplifications between Ct 33 and 40
+DEMO_CT = CtModel(cutoff=40.0, cycles_per_doubling=1.0, noise_sd=0.5, false_positive_low=33.0,
+                  weights=(0.65, 0.35), means=(29.0, 23.0), sds=(3.0, 2.0), detection_max=0.98)
+DEMO_ASSAY = Assay(0.995, CtSensitivity(DEMO_CT))
 PLATES, ROWS, COLS = 3, "ABCDEFGH", 12
 POOL_SIZE = 8
 PREVALENCE = 0.03
 
 
+def read_pool(members, truth, ct, rng, replicates: int = 1) -> list:
+    """Invented readouts of one pool through DEMO_ASSAY: ``(result, ct text)`` per readout (the
+    Ct load model: the positives' amounts add up and the pool dilutes them k-fold)."""
+    k = len(members)
+    positive = members[truth[members]]
+    out = []
+    for _ in range(replicates):
+        if len(positive):
+            s = DEMO_CT.cycles_per_doubling
+            pool_ct = s * np.log2(k) - s * np.log2(np.sum(np.exp2(-ct[positive] / s)))
+            y = float(DEMO_CT.draw_readout_ct(np.array([pool_ct]), rng)[0])
+        elif rng.random() < 1.0 - DEMO_ASSAY.specificity:
+            y = float(rng.uniform(DEMO_CT.false_positive_low, DEMO_CT.cutoff))
+        else:
+            y = float("nan")
+        out.append(("positive", f"{y:.1f}") if np.isfinite(y) else ("negative", ""))
+    return out
+
+
 def invented_run(seed: int = DEMO_SEED):
-    """Invented layout, readouts, samples and truth frames for the demo."""
+    """Invented layout, readouts (with Cts), samples and truth frames for the demo."""
     rng = np.random.default_rng(seed)
     wells = [(p + 1, f"{r}{c}") for p in range(PLATES) for c in range(1, COLS + 1) for r in ROWS]
     n = len(wells)
     ids = [f"SW{p}-{w}" for p, w in wells]
     truth = rng.random(n) < PREVALENCE
-    load = np.where(truth, rng.normal(5.0, 1.3, n), 0.0)  # invented log10 copies per mL
+    ct = np.where(truth, DEMO_CT.draw_individual_ct(n, rng), np.nan)  # invented individual Cts
     samples = pd.DataFrame({"sample": ids, "plate": [f"plate{p}" for p, _ in wells],
                             "well": [w for _, w in wells], "prior": PREVALENCE})
     lay_rows, read_rows = [], []
 
-    def read(pool, members, replicates=1):
-        k, dpos = len(members), int(truth[members].sum())
-        p_pos = DEMO_ASSAY.positive_probability(np.array([k]), np.array([dpos]))[0]
-        conc = np.log10(max(np.sum(10.0 ** load[members][truth[members]]), 1.0) / k)
-        any_pos = False
-        for _ in range(replicates):
-            pos = bool(rng.random() < p_pos)
-            any_pos |= pos
-            ct = float(np.clip(44.0 - 3.32 * conc + rng.normal(0, 0.6), 14, 40)) if pos else None
-            read_rows.append({"pool": pool, "result": "positive" if pos else "negative",
-                              "ct": "" if ct is None else f"{ct:.1f}"})
-        return any_pos
+    def read(pool, members):
+        got = read_pool(members, truth, ct, rng)
+        read_rows.extend({"pool": pool, "result": r, "ct": c} for r, c in got)
+        return any(r == "positive" for r, _ in got)
 
     for b in range(n // POOL_SIZE):
         members = np.arange(b * POOL_SIZE, (b + 1) * POOL_SIZE)
@@ -62,7 +83,8 @@ def invented_run(seed: int = DEMO_SEED):
     layout = pd.DataFrame(lay_rows)
     readouts = pd.DataFrame(read_rows)
     truth_frame = pd.DataFrame({"sample": ids, "invented_truth": np.where(truth, "positive",
-                                                                          "negative")})
+                                                                          "negative"),
+                                "invented_individual_ct": np.round(ct, 2)})
     return layout, readouts, samples, truth_frame
 
 
@@ -89,16 +111,18 @@ DEMO_NEXT_TESTS = 24  # a quarter plate of follow-up tests
 def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> DemoResult:
     """The whole job on invented data, every file written into ``folder``.
 
-    1. The statistician fits the assay from an invented validation set (the family by AIC) and
-       writes ``assay.toml`` with its sensitivity plot.
-    2. The assay scientist decodes the invented two-stage screening run with that assay.
+    1. The statistician fits the Ct load model from an invented validation set with Cts
+       (:func:`bayespool.calibration.ct_fit.calibrate_ct`) and writes ``assay.toml`` (a ``[ct]``
+       assay with its ``[fit]`` table) and the implied sensitivity curve.
+    2. The assay scientist decodes the invented two-stage screening run with that assay, reading
+       the Cts.
     3. The planner picks the next tests for the specimens left inconclusive.
     4. One offline report shows the run, the calls, the plan and the calibration.
     """
-    from .calibration import calibrate_validation
-    from .calibration.plot import write_plots
-    from .calibration.validation import ValidationData
+    from .calibration.ct_fit import calibrate_ct
+    from .io import read_table
     from .planning import plan
+    from .report.plots import write_sensitivity_plot
     from .report import write_report
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -109,10 +133,12 @@ def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> De
              "posterior": folder / "posterior.csv", "next_pools": folder / "next_pools.csv",
              "report": folder / "report.html"}
     write_frame(invented_validation(seed), files["validation"])
-    calibration = calibrate_validation(ValidationData.read(files["validation"]), "best")
+    table = read_table(files["validation"], ["pool_size", "positives", "result"], "validation")
+    calibration = calibrate_ct(table, cutoff=DEMO_CT.cutoff)
     calibration.assay.write(files["assay"])
-    for kind, path in write_plots(calibration, files["assay"]).items():
-        files[f"curve_{kind}"] = Path(path)
+    for kind in ("png", "svg"):
+        files[f"curve_{kind}"] = folder / f"assay-curve.{kind}"
+        write_sensitivity_plot(calibration.assay, files[f"curve_{kind}"], [1, POOL_SIZE])
     write_frame(layout, files["layout"])
     write_frame(readouts, files["readouts"])
     write_frame(samples, files["samples"])
@@ -134,12 +160,19 @@ def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> De
 # ---- the invented validation set behind the demo's calibration
 def invented_validation(seed: int = DEMO_SEED) -> pd.DataFrame:
     """An invented validation set (spiked pools with a known number of positives) read through
-    DEMO_ASSAY: ``pool_size,positives,result``. Invented for the demonstration, not real data."""
+    DEMO_ASSAY: ``pool_size,positives,result,ct,individual_ct`` (``individual_ct``: the spiked
+    specimen's invented Ct read alone, on pools with one positive). Invented for the
+    demonstration, not real data."""
     rng = np.random.default_rng(seed + 1)
     cells = [(1, 1, 24), (4, 1, 24), (8, 1, 24), (16, 1, 24), (32, 1, 24), (64, 1, 24),
              (32, 2, 24), (16, 2, 24), (8, 0, 300), (32, 0, 300)]
-    k = np.concatenate([np.full(n, size) for size, _, n in cells])
-    d = np.concatenate([np.full(n, pos) for _, pos, n in cells])
-    y = DEMO_ASSAY.draw_readouts(k, d, rng)
-    return pd.DataFrame({"pool_size": k, "positives": d,
-                         "result": np.where(y, "positive", "negative")})
+    rows = []
+    for size, pos, n in cells:
+        for _ in range(n):
+            truth = np.zeros(size, dtype=bool)
+            truth[:pos] = True
+            ct = np.where(truth, DEMO_CT.draw_individual_ct(size, rng), np.nan)
+            (result, value), = read_pool(np.arange(size), truth, ct, rng)
+            rows.append({"pool_size": size, "positives": pos, "result": result, "ct": value,
+                         "individual_ct": f"{ct[0]:.1f}" if pos == 1 else ""})
+    return pd.DataFrame(rows)

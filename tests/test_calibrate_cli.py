@@ -239,12 +239,20 @@ def test_table_model_without_single_positive_cells_warns_and_decodes(cli, tmp_pa
 
 
 def test_demo_calibrates_from_its_invented_validation_set(tmp_path):
+    from bayespool.calibration import calibrate_validation
+    from bayespool.calibration.validation import ValidationData
     from bayespool.demo import run_demo
     result = run_demo(tmp_path)
     for name in ("invented_validation.csv", "assay.toml", "assay-curve.png", "assay-curve.svg"):
         assert (tmp_path / name).exists()
     assert Assay.read(tmp_path / "assay.toml").details["method"] == "validation"
-    assert result.calibration.model in ("constant", "dilution", "table")
+    # the demo fits the Ct load model (its validation set has ct and individual_ct columns) ...
+    assert Assay.read(tmp_path / "assay.toml").ct is not None
+    assert result.calibration.summary()["kind"] == "validation with Ct"
+    # ... and the same set's pool_size, positives and result columns fit a binary family
+    binary = calibrate_validation(ValidationData.read(tmp_path / "invented_validation.csv"),
+                                  "best")
+    assert binary.model in ("constant", "dilution", "table")
 
 
 def test_fixed_values_that_rule_out_the_data_exit_2(cli, tmp_path, validation):

@@ -98,6 +98,26 @@ def test_main_sections_render_and_the_script_runs(browser, demo):
     assert dom.by_id("positives").find("svg") is not None
 
 
+def test_ct_sections_render_with_their_figures(browser, demo):
+    # the demo reads an invented Ct assay: the Ct evidence and the Ct calibration render, each
+    # specimen with an estimated Ct appears in the figure, and every Ct of the readouts file is
+    # in the pools table
+    dom = parse(browser.dom(demo.url))
+    ct = dom.by_id("ct")
+    assert ct is not None and len(ct.find_all("svg")) == 2
+    frame = demo.result.posterior.to_frame()
+    estimated = frame.loc[np.isfinite(frame["ct_mean"].to_numpy(float)), "sample"]
+    figure_text = ct.find_all("svg")[0].text()
+    assert len(estimated) and all(str(s) in figure_text for s in estimated)
+    import pandas as pd
+    readouts = pd.read_csv(demo.result.files["readouts"], dtype=str, keep_default_na=False)
+    table = ct.find("table", class_=lambda v: "ct-pools" in v.split()).text()
+    for value in readouts.loc[readouts["ct"] != "", "ct"]:
+        assert value in table
+    fit = dom.by_id("ct-calibration")
+    assert fit is not None and fit.find("svg") is not None
+
+
 def test_a_view_in_the_address_sorts_and_filters(browser, demo):
     post = demo.result.posterior
     dom = parse(browser.dom(demo.url + "#view:sort=probability:asc;call=inconclusive"))

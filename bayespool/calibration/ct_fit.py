@@ -28,7 +28,6 @@ from scipy import optimize, stats
 
 from ..errors import InputError
 
-Z95 = stats.norm.ppf(0.975)
 
 
 @dataclass(eq=False)
@@ -42,17 +41,19 @@ class CtCalibration:
     readouts: int
     warnings: list = field(default_factory=list)
     points: object = None    # the one-positive readouts: pool_size, individual_ct, ct (NaN = none)
+    level: float = 0.95
 
     def summary(self) -> dict:
         return {"kind": "validation with Ct", "readouts": self.readouts,
                 "parameters": {k: {"estimate": v[0], "low": v[1], "high": v[2]}
                                for k, v in self.estimates.items()},
-                "mixture_components": self.components,
+                "level": self.level, "mixture_components": self.components,
                 "mixture_selection": "BIC", "bic": {str(k): v for k, v in self.bic.items()},
                 "assay": self.assay.describe(), "warnings": list(self.warnings)}
 
     def text(self) -> str:
-        lines = [f"Ct model fitted from {self.readouts} validation readouts (95 % intervals: "
+        lines = [f"Ct model fitted from {self.readouts} validation readouts ({self.level:.0%} "
+                 "intervals: "
                  "Wald for the load model, Clopper-Pearson for the specificity)"]
         for k, (est, lo, hi) in self.estimates.items():
             lines.append(f"  {k:<22} {est:.4g}  [{lo:.4g}, {hi:.4g}]")
@@ -62,11 +63,12 @@ class CtCalibration:
         return "\n".join(lines)
 
 
-def fit_dilution(pool_size, individual_ct, ct, cutoff: float):
+def fit_dilution(pool_size, individual_ct, ct, cutoff: float, level: float = 0.95):
     """MLE of (s, noise_sd, detection_max) from one-positive readouts; ``ct`` NaN = no Ct.
 
-    Returns (estimates dict name -> (est, low, high)).
+    Returns (estimates dict name -> (est, low, high)), Wald intervals at ``level``.
     """
+    z_level = stats.norm.ppf(0.5 + level / 2)
     k = np.asarray(pool_size, float)
     c = np.asarray(individual_ct, float)
     y = np.asarray(ct, float)
@@ -96,15 +98,15 @@ def fit_dilution(pool_size, individual_ct, ct, cutoff: float):
 
     def expit(v):
         return 1.0 / (1.0 + math.exp(-v))
-    out = {"cycles_per_doubling": (s, s - Z95 * se[0], s + Z95 * se[0]),
-           "noise_sd": (math.exp(log_sd), math.exp(log_sd - Z95 * se[1]),
-                        math.exp(log_sd + Z95 * se[1]))}
+    out = {"cycles_per_doubling": (s, s - z_level * se[0], s + z_level * se[0]),
+           "noise_sd": (math.exp(log_sd), math.exp(log_sd - z_level * se[1]),
+                        math.exp(log_sd + z_level * se[1]))}
     if all_amp:  # every readout amplified: detection_max at its bound, one-sided exact interval
         n = int(amp.sum())
-        out["detection_max"] = (1.0, 0.05 ** (1.0 / n), 1.0)
+        out["detection_max"] = (1.0, (1.0 - level) ** (1.0 / n), 1.0)
     else:
-        out["detection_max"] = (expit(logit_dm), expit(logit_dm - Z95 * se[2]),
-                                expit(logit_dm + Z95 * se[2]))
+        out["detection_max"] = (expit(logit_dm), expit(logit_dm - z_level * se[2]),
+                                expit(logit_dm + z_level * se[2]))
     return out
 
 
@@ -154,9 +156,11 @@ def fit_mixture(values, max_components: int = 3, seed: int = 0):
     return w, m, sd, bics
 
 
-def calibrate_ct(table, *, cutoff: float = 40.0):
+def calibrate_ct(table, *, cutoff: float = 40.0, level: float = 0.95):
     """Fit the ``[ct]`` assay from a validation table (pool_size, positives, result, ct,
-    individual_ct) read by :func:`bayespool.io.read_table`."""
+    individual_ct) read by :func:`bayespool.io.read_table`; intervals at ``level``."""
+    from .fit import check_options
+    level = check_options("best", level, "profile")
     from ..assay import Assay
     from ..ct import CtModel, CtSensitivity
     from ..run import parse_results
@@ -184,14 +188,15 @@ def calibrate_ct(table, *, cutoff: float = 40.0):
         raise InputError("the validation file has no pool without a positive member: the "
                          "specificity cannot be fitted", table.path)
     sp = 1 - x / n_neg
-    lo = 1 - stats.beta.ppf(0.975, x + 1, n_neg - x) if x < n_neg else 0.0
-    hi = 1 - stats.beta.ppf(0.025, x, n_neg - x + 1) if x > 0 else 1.0
+    tail = (1.0 - level) / 2
+    lo = 1 - stats.beta.ppf(1 - tail, x + 1, n_neg - x) if x < n_neg else 0.0
+    hi = 1 - stats.beta.ppf(tail, x, n_neg - x + 1) if x > 0 else 1.0
     one = keep & (d == 1) & ind_given & np.isfinite(ind)
     if one.sum() < 10:
         raise InputError(f"only {int(one.sum())} readouts of pools with one positive and a known "
                          "individual_ct: at least 10 are needed to fit the Ct model", table.path)
     y = np.where((res == 1) & np.isfinite(ct), ct, np.nan)
-    est = fit_dilution(k[one], ind[one], y[one], cutoff)
+    est = fit_dilution(k[one], ind[one], y[one], cutoff, level)
     est["specificity"] = (sp, lo, hi)
     fp_cts = ct[false_amp & np.isfinite(ct) & (ct < cutoff)]
     if len(fp_cts):
@@ -210,6 +215,7 @@ def calibrate_ct(table, *, cutoff: float = 40.0):
         warnings.append(f"cycles_per_doubling {s[0]:.3f} [{s[1]:.3f}, {s[2]:.3f}] excludes 1 "
                         "(100 % amplification efficiency)")
     details = {"method": "validation", "model": "ct", "readouts_used": int(keep.sum()),
+               "level": level,
                "mixture_components": len(w), "mixture_selection": "BIC",
                "estimates": {name: {"estimate": float(v[0]), "lower": float(v[1]),
                                     "upper": float(v[2]),
@@ -222,4 +228,4 @@ def calibrate_ct(table, *, cutoff: float = 40.0):
     assay = Assay(float(sp), CtSensitivity(model), details)
     import pandas as pd
     points = pd.DataFrame({"pool_size": k[one], "individual_ct": ind[one], "ct": y[one]})
-    return CtCalibration(assay, est, len(w), bics, int(keep.sum()), warnings, points)
+    return CtCalibration(assay, est, len(w), bics, int(keep.sum()), warnings, points, level)

@@ -277,6 +277,8 @@ def _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max
     damping, tolerance, max_sweeps = check_bp_options(damping, tolerance, max_sweeps)
     exact_limit = check_count(exact_limit, "exact_limit")
     check_seed(seed)  # a bad seed fails before any work
+    from .gibbs.decode import check_options
+    gibbs_options = check_options(gibbs_options) or None  # whichever sampler will use them
     if run.n_samples == 0:
         raise InputError("there are no samples to decode: the layout is empty and no samples file "
                          "lists any", run.sources.get("layout"))

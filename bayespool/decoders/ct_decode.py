@@ -155,17 +155,20 @@ def ct_gibbs_part(run, lik_ptr, loglik, comps, selected, options):
     from .gibbs.diagnostics import rhat_ess
     selected = np.asarray(selected, dtype=np.int64)
     specimens = np.sort(_samples_of(comps, selected)).astype(np.int64)
-    sweeps = GIBBS_SWEEPS[0]
+    given = options.get("gibbs_options") or {}
+    cap = given.get("max_sweeps", GIBBS_SWEEPS[1])
+    sweeps = min(GIBBS_SWEEPS[0], cap)
     seed = options.get("seed")
+    chains = given.get("chains", 4)
     while True:
         p, draws, nodes, hist = sample_ct(run, options["assay"], options["ct_stats"], lik_ptr,
-                                          loglik, specimens, chains=4, sweeps=sweeps,
+                                          loglik, specimens, chains=chains, sweeps=sweeps,
                                           burn=sweeps // 4, seed=seed)
         r, e = rhat_ess(draws.astype(float))
         ok = bool(np.all(r <= 1.01) and np.all(e >= 400))
-        if ok or sweeps >= GIBBS_SWEEPS[1]:
+        if ok or sweeps >= cap:
             break
-        sweeps *= 2
+        sweeps = min(2 * sweeps, cap)
     prob = np.array(run.prior, dtype=float)
     prob[specimens] = p
     cols = options["ct_columns"]
@@ -174,9 +177,16 @@ def ct_gibbs_part(run, lik_ptr, loglik, comps, selected, options):
             if p[j] >= options["negative_below"] and hist[j].sum() > 0:
                 cols["ct_mean"][i], cols["ct_low"][i], cols["ct_high"][i] = \
                     ct_summary(nodes, np.log(hist[j]))
+    per_sweep = np.bincount(draws.sum(axis=2).ravel().astype(np.int64),
+                            minlength=len(specimens) + 1).astype(float)
     part = DecodedPart("gibbs", selected, specimens, prob, converged=ok,
+                       count_parts=[per_sweep / per_sweep.sum()],
                        diagnostics={"sampler": "statuses and shared individual Cts jointly",
-                                    "sweeps_per_chain": sweeps, "chains": 4,
+                                    "stop": (f"R-hat <= 1.01 and ESS >= 400 after {sweeps} "
+                                             "sweeps per chain" if ok else
+                                             f"stopped at the cap of {sweeps} sweeps per chain "
+                                             "before R-hat <= 1.01 and ESS >= 400"),
+                                    "sweeps_per_chain": sweeps, "chains": chains,
                                     "max_rhat": float(np.max(r)), "min_ess": float(np.min(e))})
     if not ok:
         part.warnings.append(f"the Ct sampler did not reach R-hat <= 1.01 and ESS >= 400 within "

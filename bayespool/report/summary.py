@@ -162,11 +162,16 @@ def assay_section(assay, run=None, observed=None, shown_elsewhere=()) -> str:
     assay file's ``[fit]`` table) is folded here, less what the calibration section of the same
     report already shows (``shown_elsewhere``: keys of its summary), so nothing is shown twice."""
     s = assay.sensitivity
-    params = {k: v for k, v in s.to_dict().items() if k not in ("model", "table")}
+    params = {k: v for k, v in s.to_dict().items() if k not in ("model", "table", "positive")}
     items = [("Model", text(assay.describe())), ("Specificity", text(fmt.number(assay.specificity))),
              ("Sensitivity family", text(s.model))]
     if params:
         items.append(("Parameters", kv_table(params)))
+    mixture = s.to_dict().get("positive") if s.model == "ct" else None
+    if mixture:  # the [[ct.positive]] components, in words
+        items.append(("Individual Ct of a positive", text(" + ".join(
+            f"{c['weight']:.3g} \u00d7 normal with mean {c['mean']:.3g} and sd {c['sd']:.3g}"
+            for c in mixture))))
     body = facts(items)
     hidden = set(shown_elsewhere) | (set(FIT_TABLES) if shown_elsewhere else set())
     details = {k: v for k, v in (assay.details or {}).items() if k not in hidden}
