@@ -14,9 +14,7 @@ import warnings
 
 from .errors import ImpossibleEvidenceError, InputError
 
-CAUTION = ("Statistical decision support, not a diagnostic device: confirm results by the "
-           "laboratory's validated procedure, local regulations and the responsible licensed "
-           "professional.")
+from .result_protocol import CAUTION, file_frame, json_ready
 
 
 # Library errors name the Python parameter; the command line shows the flag that sets it. Flags
@@ -240,34 +238,22 @@ def _add_assay(sub):
 
 
 def _run_assay(args):
-    from .assay import Assay, sensitivity_table
+    from .assay import Assay
+    from .assay_curve import assay_curve
     plot = args.plot
     if plot:
         _check_outputs(args, plot=plot)
         if not plot.lower().endswith((".svg", ".png")):
             raise InputError(f"--plot {plot!r}: the file name must end in .svg or .png")
-    assay = Assay.read(args.assay_file)
-    table = sensitivity_table(assay, args.pool_sizes)
+    result = assay_curve(Assay.read(args.assay_file), pool_sizes=args.pool_sizes,
+                         source=args.assay_file)
     if plot:
         from .report.plots import write_sensitivity_plot
-        write_sensitivity_plot(assay, plot, table["pool_size"].unique())
+        write_sensitivity_plot(result.assay, plot, result.pool_sizes)
     if args.json:
-        out = {"specificity": assay.specificity,
-               "sensitivity": [{"pool_size": int(r.pool_size), "positives": int(r.positives),
-                                "value": float(r.value)} for r in table.itertuples()]}
-        print(json.dumps(out, indent=2))
+        print(json.dumps(result.summary(), indent=2))
         return 0
-    print(f"{args.assay_file}: {assay.describe()}")
-    sizes = list(table["pool_size"].unique())
-    shown = min(max(sizes), 8)
-    print(f"Se(k, d): P(a readout amplifies | pool of k, d positive members)"
-          + (f"; d > {shown} in --json" if max(sizes) > shown else ""))
-    print("     k " + "".join(f"{'d=' + str(d):>9}" for d in range(1, shown + 1)))
-    for k in sizes:
-        vals = table[table["pool_size"] == k].set_index("positives")["value"]
-        print(f"{k:>6} " + "".join(f"{vals[d]:>9.4f}" if d <= k else " " * 9
-                                   for d in range(1, shown + 1)))
-    print(f"no positive member: P(amplifies) = 1 - Sp = {1 - assay.specificity:.4g}")
+    print(result)
     if plot:
         print(f"wrote {plot}")
     return 0
@@ -322,28 +308,6 @@ def _gibbs_options(args) -> dict:
             "prevalence_prior": args.prevalence_prior}
 
 
-def _print_gibbs(post) -> None:
-    """The sampler's stop reason and joint answers, when it ran."""
-    d = post.diagnostics
-    if "gibbs" not in d:
-        return
-    print(f"Gibbs sampler: {d['gibbs']['stop']}")
-    pos = d.get("positives_posterior")
-    if pos:
-        lo, hi = pos["interval_95"]
-        print(f"  number of positive samples: mean {pos['mean']:.2f}, 95% credible interval "
-              f"{lo} to {hi}")
-    prev = d.get("prevalence_posterior")
-    if prev:
-        a, b = prev["interval_95"]
-        print(f"  prevalence: posterior mean {prev['mean']:.4f}, 95% interval {a:.4f} to {b:.4f}")
-    groups = d.get("ambiguity_groups") or []
-    for grp in groups[:10]:
-        print(f"  pool {', '.join(grp['pools'])}: {grp['text']}")
-    if len(groups) > 10:
-        print(f"  ... and {len(groups) - 10} more ambiguity group(s) (see --json)")
-
-
 def _run_decode(args):
     from .decoders import decode
     from .io import write_frame
@@ -358,7 +322,7 @@ def _run_decode(args):
     if check is not None:
         from .controls import mark_specimens
         mark_specimens(post, run, check)
-    write_frame(post.to_frame(), args.out)
+    write_frame(file_frame(post.to_frame()), args.out)
     if args.report:
         from .report import write_report
         write_report(args.report, run=run, assay=assay, posterior=post, controls=check,
@@ -374,44 +338,17 @@ def _run_decode(args):
                         "assay_uncertainty": args.assay_uncertainty})
         if check is not None:
             summary["controls"] = check.summary()
-        print(json.dumps(_json_ready(summary), indent=2))
+        print(json.dumps(json_ready(summary), indent=2))
     else:
-        c = post.counts()
-        print(f"{run.n_samples} samples, {run.n_pools} pools, {run.n_readouts} readouts, "
-              f"decoded by {post.method}: {c['positive']} positive, {c['negative']} negative, "
-              f"{c['inconclusive']} inconclusive" +
-              (f", {c['untested']} untested" if c["untested"] else ""))
-        _print_batch(post)
-        _print_gibbs(post)
+        print(post)
         if check is not None:
-            print("\n".join(check.lines()))
+            print(check)
         print(f"wrote {args.out}" + (f" and {args.report}" if args.report else ""))
     if args.strict and problems:
         for why in problems:
             print(f"bayespool {args.command}: unreliable: {why}", file=sys.stderr)
         return 3
     return 0
-
-
-def _print_batch(post) -> None:
-    """What the batch can expect of its calls, and the model check, in a few lines."""
-    b = post.batch
-    if b:
-        def span(e, fmt):
-            return f"{format(e['mean'], fmt)} ({format(e['low'], fmt)} to {format(e['high'], fmt)})"
-        print(f"calls: {post.decision_rule.describe()}")
-        print(f"  expected missed positives among negative calls: "
-              f"{span(b['expected_missed'], '.2f')}")
-        print(f"  expected false positives among positive calls: "
-              f"{span(b['expected_false_positives'], '.2f')}")
-        print(f"  expected batch sensitivity {span(b['expected_sensitivity'], '.3f')}, false "
-              f"discovery rate {span(b['expected_false_discovery_rate'], '.3f')} "
-              f"(95% intervals; {b['basis']})")
-    m = post.model_check
-    if m and m["checks"]:
-        verdict = "does not fit" if m["warnings"] else "no misfit found"
-        print(f"model check: {verdict} (posterior predictive p = {m['p_value']:.3g}, "
-              f"{len(m['checks'])} checks)")
 
 
 # ---- demo
@@ -560,10 +497,9 @@ def _run_design(args):
             _note(args, f"no pool size reaches a sensitivity of {args.target_sensitivity:g} "
                   f"(the best is {opt.best.sensitivity:.4f} at k = {opt.best.pool_size}): "
                   "consider a repeat test of positives or a more sensitive assay")
-        summary["optimum"] = opt.to_dict()
-        summary["optimum"]["assay"] = assay.describe() if assay else "error-free"
+        summary["optimum"] = opt.summary()
         if not args.json:
-            _print_optimum(opt, assay, args.max_pool_size is not None)
+            print(opt)
         args.pool_size = opt.best.pool_size
     elif args.prevalence is not None or args.assay or args.target_sensitivity is not None:
         raise InputError("--prevalence, --assay and --target-sensitivity go with --optimize")
@@ -583,48 +519,20 @@ def _run_design(args):
     wl = _write_worklist(args, design.layout, spec.table) if args.worklist else None
     write_frame(design.layout, args.out)
     if args.json:
-        summary.update(design.properties.to_dict())
+        summary.update(design.summary())
         summary["out"] = args.out
         summary["audit"] = _audit(args).to_dict()
         if wl is not None:
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
-        print(json.dumps(_json_ready(summary), indent=2))
+        print(json.dumps(json_ready(summary), indent=2))
     else:
-        print("\n".join(design.properties.lines()))
-        if wl is not None:
-            print("\n".join(wl.lines()))
-            print(f"wrote {args.worklist}")
-        if args.scheme == "code" and design.n_samples <= 64:
-            for t in range(design.n_pools):
-                print(f"  pool {design.pool_ids[t]}: "
-                      + " ".join(map(str, design.sample_ids[design.members(t)])))
+        if wl is None:
+            print(design)
+        else:
+            print("\n".join([str(design.properties), str(wl), f"wrote {args.worklist}"]
+                            + design.pool_lines()))
         print(f"wrote {args.out}")
     return 0
-
-
-def _print_optimum(opt, assay, capped: bool) -> None:
-    b = opt.best
-    source = ("Kim et al. 2007 closed forms" + (" with dilution" if
-              assay.sensitivity.model != "constant" else "")) if assay else \
-        "error-free test, Dorfman 1943"
-    print(f"Dorfman pooling at prevalence {b.prevalence:g} ({source})")
-    if not opt.saves and opt.target_sensitivity is None:
-        print(f"  pooling saves nothing at this prevalence: test each specimen alone "
-              f"(pool sizes 2 to {opt.max_pool_size} all cost more)")
-    limit = ""
-    if opt.at_limit:
-        limit = (" (the --max-pool-size limit: larger pools would cost fewer tests)" if capped
-                 else " (the largest size searched: a larger --max-pool-size may do better)")
-    if opt.target_sensitivity is not None:
-        print(f"  among pool sizes with a sensitivity of at least {opt.target_sensitivity:g}"
-              + ("" if opt.meets_target else ": none reaches it, so the most sensitive"))
-    print(f"  best pool size: {b.pool_size}{limit}")
-    print(f"  expected tests per specimen: {b.tests_per_sample:.4f} "
-          f"({100 * (1 - b.tests_per_sample):.1f}% fewer than one test each)")
-    print(f"  pooled sensitivity: {b.sensitivity:.4f}, pooled specificity: {b.specificity:.4f}")
-    t = opt.table.sort_values("tests_per_sample").head(5).sort_values("pool_size")
-    print("  nearby: " + ", ".join(f"k={int(r.pool_size)}: {r.tests_per_sample:.4f}"
-                                   for r in t.itertuples()))
 
 
 # ---- simulate
@@ -810,109 +718,14 @@ def _simulate_on(args, client):
         write_study_report(args.report, result, audit=audit)
         written.append(args.report)
     if args.json:
-        doc = result.results[0].to_dict() if len(result.results) == 1 and _single_cell(args) \
-            else {"points": result.to_dict()}
-        print(json.dumps(_json_ready({**doc, "audit": audit.to_dict()}), indent=2))
-    elif len(result.results) == 1:
-        sim = result.results[0]
-        _print_simulation(sim, sim.characteristics.table())
+        doc = result.results[0].summary() if len(result.results) == 1 and _single_cell(args) \
+            else result.summary()
+        print(json.dumps(json_ready({**doc, "audit": audit.to_dict()}), indent=2))
     else:
-        _print_sweep(result, table)
+        print(result)
     if written and not args.json:
         print(f"wrote {', '.join(written)}")
     return 0
-
-
-def _json_ready(value):
-    """NaN and infinities have no JSON spelling: they become null."""
-    import math
-    if isinstance(value, dict):
-        return {k: _json_ready(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_json_ready(v) for v in value]
-    if hasattr(value, "item"):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
-
-
-def _fmt(value, se=None, digits=4) -> str:
-    """A value to ``digits`` decimals, more when its standard error needs them (2 significant)."""
-    import math
-    if value is None or (isinstance(value, float) and math.isnan(value)):
-        return "n/a"
-    if se is not None and not (isinstance(se, float) and math.isnan(se)):
-        if se > 0:
-            digits = min(max(digits, 1 - math.floor(math.log10(se))), 8)
-        return f"{value:.{digits}f} ± {se:.{digits}f}"
-    return f"{value:.{digits}f}"
-
-
-LABELS = {"tests_per_sample": "tests per specimen", "sensitivity": "sensitivity",
-          "specificity": "specificity", "ppv": "positive predictive value",
-          "npv": "negative predictive value", "rounds": "rounds (turnaround)",
-          "draws_per_sample": "draws per specimen"}
-
-
-def _param_text(value) -> str:
-    """A protocol parameter for people: ``none`` rather than Python's None."""
-    if value is None:
-        return "none"
-    return f"{value:g}" if isinstance(value, float) else str(value)
-
-
-def _print_simulation(sim, table) -> None:
-    params = ", ".join(f"{k.replace('_', ' ')} {_param_text(v)}"
-                       for k, v in sim.parameters.items())
-    c = sim.characteristics
-    prev = f"prevalence {sim.prevalence:g}" if sim.prevalence is not None else "per-specimen priors"
-    print(f"{sim.scheme}" + (f" ({params})" if params else "") + f", {c.specimens} specimens, "
-          f"{prev}, {sim.assay.describe()}")
-    print(f"{c.runs} simulated runs (estimate ± Monte Carlo standard error)"
-          + (f"; closed form: {sim.expected['source']}" if sim.expected is not None else ""))
-    for row in table.itertuples():
-        shown = _fmt(row.estimate, row.mcse)
-        line = f"  {LABELS[row.characteristic]:<27} {shown:>20}"
-        if sim.expected is not None and row.characteristic in sim.expected:
-            decimals = len(shown.split(" ")[0].partition(".")[2]) or 4
-            line += f"   closed form {_fmt(sim.expected[row.characteristic], digits=decimals)}"
-        print(line)
-    print(f"  most draws from one specimen: {c.max_draws}")
-    for note in sim.notes:
-        print(f"  note: {note}")
-    print("  " + CAUTION)
-
-
-def _blank(value) -> bool:
-    return value is None or (isinstance(value, float) and value != value)
-
-
-def _print_sweep(result, table) -> None:
-    first = result.results[0]
-    schemes = list(dict.fromkeys(table["scheme"]))
-    assays = list(dict.fromkeys(s.assay.describe() for s in result.results))
-    print(f"{', '.join(schemes)} {'study' if len(schemes) > 1 else 'sweep'}, "
-          f"{first.characteristics.specimens} specimens, "
-          f"{first.characteristics.runs} runs per setting"
-          + (f", {assays[0]}" if len(assays) == 1 else ""))
-    keys = [k for k in ("scheme", "prevalence", "assay", "pool_size", "rows", "cols",
-                        "negative_below", "positive_above")
-            if k in table.columns and (k != "scheme" or len(schemes) > 1)]
-    cols = ["tests_per_sample", "sensitivity", "specificity", "ppv", "npv", "rounds"]
-    head = [k.replace("_", " ") for k in keys] + ["tests/specimen", "sensitivity",
-                                                  "specificity", "PPV", "NPV", "rounds"]
-    rows = []
-    for r in table.to_dict("records"):
-        cells = ["" if _blank(r[k]) else (f"{r[k]:g}" if isinstance(r[k], (int, float))
-                                          else str(r[k])) for k in keys]
-        cells += [_fmt(r[c], r[f"{c}_se"], 3) for c in cols]
-        rows.append(cells)
-    widths = [max(len(h), *(len(row[i]) for row in rows)) for i, h in enumerate(head)]
-    print("  ".join(h.rjust(w) for h, w in zip(head, widths)))
-    for row in rows:
-        print("  ".join(c.rjust(w) for c, w in zip(row, widths)))
-    print("(estimate ± Monte Carlo standard error) " + CAUTION)
 
 
 # ---- calibrate
@@ -981,7 +794,7 @@ def _run_calibrate_ct(args, table):
         summary["out"] = args.out
         print(json.dumps(summary, indent=2))
     else:
-        print(result.text())
+        print(result)
         print(f"wrote {args.out} (the Ct fit writes no sensitivity plot; `bayespool assay "
               f"{args.out} --plot FILE` draws the implied curve)")
         print(CAUTION)
@@ -1049,7 +862,7 @@ def _run_calibrate(args):
             summary["report"] = args.report
         print(json.dumps(summary, indent=2))
     else:
-        print(result.text())
+        print(result)
         print(f"wrote {', '.join(written)}")
         print(CAUTION)
     return 0
@@ -1110,7 +923,7 @@ def _run_plan(args):
     result = plan(run, assay, posterior=post, tests=args.tests, max_pool_size=args.max_pool_size,
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked)
-    frame = result.to_frame()
+    frame = file_frame(result.to_frame())
     wl = None
     if args.worklist:
         replicates = frame.loc[frame["kind"] == "replicate", "pool"].unique()
@@ -1120,7 +933,7 @@ def _run_plan(args):
     write_frame(frame, args.out)
     if report:
         from .report import write_report
-        write_report(report, run=run, assay=assay, posterior=post, plan=frame,
+        write_report(report, run=run, assay=assay, posterior=post, plan=result,
                      controls=args.control_check, worklist=wl, audit=audit)
     check = args.control_check
     for w in post.warnings + result.notes + (check.messages if check is not None else []):
@@ -1134,19 +947,13 @@ def _run_plan(args):
             summary["worklist"] = dict(wl.summary(), out=args.worklist)
         if check is not None:
             summary["controls"] = check.summary()
-        print(json.dumps(_json_ready(summary), indent=2))
+        print(json.dumps(json_ready(summary), indent=2))
     elif result.decided:
-        print(f"every sample is decided ({run.n_samples} samples): no test to plan; wrote a "
-              f"header only to {args.out}")
+        print(f"{result}; wrote a header only to {args.out}")
     else:
-        c = post.counts()
-        print(f"{run.n_samples} samples: {c['positive']} positive, {c['negative']} negative, "
-              f"{c['inconclusive']} undecided")
-        print(f"planned {result.n_tests} pools ({len(result.pool_members)} memberships), "
-              f"expected information {result.total_information:.2f} bits; wrote {args.out}"
-              + (f" and {report}" if report else ""))
+        print(f"{result}; wrote {args.out}" + (f" and {report}" if report else ""))
         if wl is not None:
-            print("\n".join(wl.lines()))
+            print(wl)
             print(f"wrote {args.worklist}")
     return 0
 
@@ -1236,7 +1043,7 @@ def _run_prevalence(args):
     except InputError as exc:
         raise _with_flags(exc, PREVALENCE_FLAGS) from None
     if args.out:
-        write_frame(result.to_frame().reset_index(), args.out)
+        write_frame(file_frame(result.to_frame()), args.out)
     audit = _audit(args) if args.report or args.json else None
     if args.report:
         from .report import write_report

@@ -16,6 +16,7 @@ from .assay import Assay, DilutionSensitivity
 from .decoders import decode
 from .decoders.posterior import Posterior
 from .io import write_frame
+from .result_protocol import file_frame
 from .run import Run
 
 DEMO_SEED = 20261201
@@ -120,11 +121,11 @@ def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> De
     run = Run.read(files["layout"], files["readouts"], files["samples"], prevalence=PREVALENCE)
     assay = Assay.read(files["assay"])
     posterior = decode(run, assay, method="auto")
-    write_frame(posterior.to_frame(), files["posterior"])
+    write_frame(file_frame(posterior.to_frame()), files["posterior"])
     next_tests = plan(run, assay, posterior=posterior, tests=DEMO_NEXT_TESTS, seed=seed)
-    write_frame(next_tests.to_frame(), files["next_pools"])
+    write_frame(file_frame(next_tests.to_frame()), files["next_pools"])
     write_report(files["report"], run=run, assay=assay, posterior=posterior,
-                 plan=next_tests.to_frame(), calibration=calibration,
+                 plan=next_tests, calibration=calibration,
                  title="bayespool demo run (invented data)",
                  notes=["All data of this run is invented for the demonstration; it is not real "
                         "and checks nothing."])

@@ -81,7 +81,7 @@ def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05), array_runs=2000,
             rows.append(f"| {name} | {p:g} | Dorfman k={dorf['k']} (closed form) | "
                         f"{dorf['tests']:.4f} | {dorf['sensitivity']:.4f} | "
                         f"{dorf['specificity']:.4f} |")
-            arr = simulate("array", 960, p, assay, runs=array_runs, seed=seed).to_dict()
+            arr = simulate("array", 960, p, assay, runs=array_runs, seed=seed).summary()
             rows.append(f"| {name} | {p:g} | array 8 x 12 (simulated) | "
                         f"{arr['tests_per_sample']:.4f} | {arr['sensitivity']:.4f} | "
                         f"{arr['specificity']:.5f} |")

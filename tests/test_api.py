@@ -238,7 +238,8 @@ def test_posterior_by_specimen_id(demo):
     frame = post.to_frame()
     sid = str(run.sample_ids[7])
     row = post[sid]
-    got = frame[frame["sample"] == sid].iloc[0]
+    assert frame.index.name == "sample"
+    got = frame.loc[sid]
     assert row["probability"] == got["probability"] and row["call"] == got["call"]
     assert sid in post and "no such specimen" not in post
     with pytest.raises(KeyError):

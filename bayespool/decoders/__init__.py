@@ -266,6 +266,7 @@ def decode(run: Run, assay, *, method: str = "auto",
     post = _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max_sweeps,
                    progress, gibbs_options, expectations, model_check, exact_memo)
     post.warnings.extend(ct_notes(run, assay))
+    post.n_pools, post.n_readouts = run.n_pools, run.n_readouts
     return post
 
 

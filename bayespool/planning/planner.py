@@ -108,12 +108,13 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
                                             rule=rule)
     prob = np.asarray(posterior.probability, dtype=float)
     undecided = np.union1d(posterior.undecided(), np.flatnonzero(untested(run)))
+    calls = posterior.counts()
     notes: list = []
     kmax = max(max_pool_size, int(run.pool_size.max()) if run.n_pools else 1)
     qtab = readout_table(assay, kmax)
     allowed = ~np.isnan(qtab[:, 0])
     if not undecided.size:
-        return _empty(run, True, 0, "decided", notes)
+        return _empty(run, True, 0, "decided", notes, calls)
     if run.n_samples and not allowed[1:max_pool_size + 1].any():
         raise InputError(f"the assay covers no pool size up to {max_pool_size}",
                          run.sources.get("assay"))
@@ -134,7 +135,7 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     if not len(batch.chosen):
         notes.append("no candidate test is expected to tell anything within the limits "
                      "(material left, pool size, linked group size)")
-        return _empty(run, False, len(undecided), batch.stop, notes)
+        return _empty(run, False, len(undecided), batch.stop, notes, calls)
     chosen = batch.chosen
     ptr = np.zeros(len(chosen) + 1, dtype=np.int64)
     np.cumsum(cands.sizes[chosen], out=ptr[1:])
@@ -146,12 +147,12 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
                                          dtype=object),
                 ptr, members, cands.kind[chosen], cands.source[chosen],
                 batch.positive_probability, batch.gain, batch.total_information,
-                len(undecided), False, run.pool_ids, batch.stop, xt.shape[1], notes)
+                len(undecided), False, run.pool_ids, batch.stop, xt.shape[1], notes, calls)
 
 
-def _empty(run, decided: bool, undecided: int, stop: str, notes: list) -> Plan:
+def _empty(run, decided: bool, undecided: int, stop: str, notes: list, calls: dict) -> Plan:
     z = np.zeros(0)
     return Plan(run.sample_ids, np.zeros(0, dtype=object), np.zeros(1, dtype=np.int64),
                 np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int8),
                 np.zeros(0, dtype=np.int64), z, z, 0.0, undecided, decided, run.pool_ids, stop,
-                0, notes)
+                0, notes, calls)

@@ -17,6 +17,7 @@ import pandas as pd
 
 from ..assay import DEFAULT_ASSAY, Assay
 from ..errors import InputError
+from ..result_protocol import Result
 from ..validation import check_count, check_open_probability, seed_sequence
 from .characteristics import ORDER, OperatingCharacteristics
 from ..design.specimens import specimens
@@ -27,9 +28,13 @@ from .protocol import Protocol
 from .protocols import accepted_options, make_protocol
 
 
-@dataclass
-class Simulation:
-    """One protocol at one setting: operating characteristics, per-run counts, closed forms."""
+@dataclass(repr=False)
+class Simulation(Result):
+    """One protocol at one setting: operating characteristics, per-run counts, closed forms.
+
+    ``to_frame()`` has one row per characteristic (index ``characteristic``): the estimate and its
+    Monte Carlo standard error; ``runs_frame`` keeps the per-run counts.
+    """
 
     scheme: str
     parameters: dict
@@ -42,7 +47,18 @@ class Simulation:
     notes: list = field(default_factory=list)
     setting: dict = field(default_factory=dict)  # what a study sweeps besides the parameters
 
-    def to_dict(self) -> dict:
+    def to_frame(self) -> pd.DataFrame:
+        return self.characteristics.table().set_index("characteristic")
+
+    def __str__(self) -> str:
+        from .text import simulation_text
+        return simulation_text(self)
+
+    def _brief(self) -> str:
+        return (f"{self.scheme!r}, {self.characteristics.runs} runs of "
+                f"{self.characteristics.specimens} specimens, prevalence={self.prevalence}")
+
+    def summary(self) -> dict:
         out = {"scheme": self.scheme, **self.parameters, "prevalence": self.prevalence,
                "assay": self.assay.describe(), "seed": self.seed}
         out.update(self.characteristics.to_dict())
@@ -101,9 +117,13 @@ def simulate(scheme, samples, *, prevalence: float | None = None, assay: Assay |
     return _simulation(cell, frame, seed)
 
 
-@dataclass
-class Sweep:
-    """A study: simulations over schemes and settings (one cell each), and their table."""
+@dataclass(repr=False)
+class Sweep(Result):
+    """A study: simulations over schemes and settings (one cell each), and their table.
+
+    ``to_frame()`` is ``table`` with one row per setting (index ``setting``); ``summary()`` is
+    ``{"points": [...]}``, one simulation's summary (plus its setting) per point.
+    """
 
     results: list
 
@@ -126,8 +146,23 @@ class Sweep:
             rows.append(row)
         return pd.DataFrame(rows)
 
-    def to_dict(self) -> list:
-        return [{**s.to_dict(), **s.setting} for s in self.results]
+    def to_frame(self) -> pd.DataFrame:
+        frame = self.table
+        frame.index.name = "setting"
+        return frame
+
+    def summary(self) -> dict:
+        return {"points": [{**s.summary(), **s.setting} for s in self.results]}
+
+    def __str__(self) -> str:
+        from .text import simulation_text, sweep_text
+        if len(self.results) == 1:
+            return simulation_text(self.results[0])
+        return sweep_text(self)
+
+    def _brief(self) -> str:
+        schemes = ", ".join(dict.fromkeys(s.scheme for s in self.results))
+        return f"{len(self.results)} setting(s) of {schemes}"
 
 
 def _as_list(value):

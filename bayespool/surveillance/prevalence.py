@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError
+from ..result_protocol import Result
 from .checks import check_beta_prior, check_level, check_positive
 from .difference import Difference, difference
 from .estimators import (bias_corrected, clipped_note, maximum_likelihood,
@@ -48,8 +49,8 @@ class GroupEstimate:
         return " / ".join(str(v) for v in self.group.values()) if self.group else ALL
 
 
-@dataclass(eq=False)
-class PrevalenceEstimates:
+@dataclass(eq=False, repr=False)
+class PrevalenceEstimates(Result):
     """Per-group prevalence estimates from pooled readouts.
 
     ``to_frame()`` is indexed by the grouping columns; estimates there (and in ``summary()``) are
@@ -123,9 +124,9 @@ class PrevalenceEstimates:
         lines.extend(f"note: {n}" for n in self.notes)
         return "\n".join(lines)
 
-    def __repr__(self) -> str:
-        return (f"PrevalenceEstimates({len(self.groups)} group(s), interval={self.interval!r}, "
-                f"level={self.level:g}, per={self.per:g})")
+    def _brief(self) -> str:
+        return (f"{len(self.groups)} group(s), interval={self.interval!r}, "
+                f"level={self.level:g}, per={self.per:g}")
 
 
 def _json_number(v: float):
