@@ -82,7 +82,7 @@ def assay_curve(assay: Assay, *, pool_sizes=None, source: str | None = None) -> 
     --------
     >>> from bayespool import Assay, ConstantSensitivity
     >>> curve = assay_curve(Assay(0.99, ConstantSensitivity(0.95)), pool_sizes=[1, 4])
-    >>> curve.to_frame().loc[(4, 2), "value"]
+    >>> float(curve.to_frame().loc[(4, 2), "value"])
     0.95
     """
     return AssayCurve(assay, sensitivity_table(assay, pool_sizes), source)

@@ -81,9 +81,9 @@ def _positive_volume(value, name: str) -> float:
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise InputError(f"{name} must be a number of microlitres, got {value!r}") from None
+        raise InputError(f"`{name}` must be a number of microlitres, got {value!r}") from None
     if not np.isfinite(v) or v <= 0:
-        raise InputError(f"{name} must be a positive number of microlitres, got {value!r}")
+        raise InputError(f"`{name}` must be a positive number of microlitres, got {value!r}")
     return v
 
 
@@ -123,10 +123,10 @@ def build_worklist(layout: pd.DataFrame, samples: pd.DataFrame, *,
         Pools that need no transfer (a replicate reading of a mix already made).
     """
     pool_volume = _positive_volume(pool_volume, "pool_volume")
-    plate_size = check_plate_size(plate_size, "destination_plate_size")
+    plate_size = check_plate_size(plate_size, "plate_size")
     prefix = str(prefix).strip()
     if not prefix:
-        raise InputError("destination_prefix must not be empty")
+        raise InputError("`prefix` must not be empty")
     for col in ("pool", "sample"):
         if col not in layout.columns:
             raise InputError(f"the layout needs a {col!r} column")

@@ -47,6 +47,18 @@ class Calibration(Result):
     pool size for runs). ``comparison`` lists the families tried with their AIC. ``covariance``
     is the large-sample covariance of the free parameters on their unconstrained scale (logit of
     probabilities, log of r50 and slope), from the inverse information.
+
+    References
+    ----------
+    Akaike (1974), IEEE Trans. Automat. Control 19 (AIC); Clopper & Pearson (1934), Biometrika 26;
+    Hui & Walter (1980), Biometrics 36.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> fit = bayespool.calibrate("datasets/demo/invented_validation.csv", model="constant")
+    >>> fit.to_frame().index.tolist(), fit.summary()["model"]
+    (['specificity', 'sensitivity'], 'constant')
     """
 
     kind: str

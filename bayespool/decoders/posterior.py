@@ -37,6 +37,23 @@ class Posterior(Result):
     by default the two thresholds; a specimen in no read pool (``columns["pools"] == 0``) is
     ``untested``. ``batch`` (what the batch can expect of its calls) and ``model_check`` (the
     posterior predictive check of the readouts) are the dictionaries of ``--json`` when computed.
+
+    References
+    ----------
+    What the batch can expect of its calls: Müller, Parmigiani, Robert & Rousseau (2004),
+    JASA 99 (posterior expected false discoveries and misses).
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> from bayespool import decode, read_assay, read_run
+    >>> demo = Path("datasets/demo")
+    >>> run = read_run(demo / "layout.csv", demo / "readouts.csv", demo / "samples.csv")
+    >>> posterior = decode(run, read_assay(demo / "assay.toml"))
+    >>> posterior["SW1-A1"]["call"], posterior.to_frame().index.name
+    ('negative', 'sample')
+    >>> print(str(posterior).splitlines()[0])
+    288 samples, 84 pools, 84 readouts, decoded by exact: 4 positive, 279 negative, 5 inconclusive
     """
 
     sample_ids: np.ndarray

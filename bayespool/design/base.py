@@ -59,6 +59,13 @@ class DesignProperties(Result):
     """The numbers that describe a design; ``disjunct`` is the guaranteed d (None if unknown).
 
     ``to_frame()`` has one row per property (index ``property``) with its ``value``.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> props = bayespool.make_design("array", 24, rows=4, cols=6).properties
+    >>> props.to_frame().loc["pools", "value"]
+    10
     """
 
     scheme: str
@@ -136,6 +143,22 @@ class Design(PoolIncidence, Result):
     ``to_frame()`` is the layout (``pool, sample``, one row per membership, index
     ``membership``); ``summary()`` and ``str()`` describe its properties, and ``str()`` lists the
     pools of a small code design (at most 64 specimens) as ``bayespool design`` prints them.
+
+    References
+    ----------
+    Dorfman (1943); Kautz & Singleton (1964), IEEE Trans. Inf. Theory 10(4).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> design = bayespool.make_design("dorfman", 8, pool_size=4)
+    >>> print(design)
+    design: dorfman (pool_size = 4)
+      specimens: 8, pools: 2, memberships: 8
+      pool size: 4
+      pools per specimen: 1
+      two specimens share at most 1 pool
+      disjunctness: none (one round cannot single out even one positive; positives need follow-up tests)
     """
 
     sample_ids: np.ndarray

@@ -105,6 +105,17 @@ class DorfmanOptimum(Result):
     ``to_frame()`` is the curve, one row per pool size tried (index ``pool_size``); ``assay`` is
     the assay the closed forms used (None: an error-free test) and ``capped`` says whether the
     search stopped at a ``max_pool_size`` the caller gave.
+
+    References
+    ----------
+    Dorfman (1943), Ann. Math. Statist. 14(4); Kim et al. (2007), Biometrics 63(4).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> opt = bayespool.optimal_dorfman(0.05)
+    >>> opt.best.pool_size, opt.to_frame().index.name
+    (5, 'pool_size')
     """
 
     best: DorfmanExpectation
@@ -177,6 +188,38 @@ def optimal_dorfman(prevalence: float, assay: Assay | None = None, *,
     ``target_sensitivity``, only pool sizes whose closed-form sensitivity meets it compete; when
     none does (not even testing alone), ``meets_target`` is False and the most sensitive size is
     returned.
+
+    Parameters
+    ----------
+    prevalence : float
+        The expected fraction of positive specimens, strictly between 0 and 1.
+    assay : Assay, optional
+        The assay (default: an error-free test).
+    max_pool_size : int, optional
+        The largest pool size searched (default: far enough past 1/sqrt(p)).
+    target_sensitivity : float, optional
+        Only pool sizes whose sensitivity meets it compete.
+
+    Returns
+    -------
+    DorfmanOptimum
+
+    Raises
+    ------
+    InputError
+        A prevalence outside (0, 1) or a bad option (naming the parameter).
+
+    References
+    ----------
+    Dorfman, R. (1943). Ann. Math. Statist. 14(4), 436-440; Kim, Hudgens, Dreyfuss, Westreich &
+    Pilcher (2007). Biometrics 63(4), 1152-1163.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> best = bayespool.optimal_dorfman(0.02).best
+    >>> best.pool_size, round(best.tests_per_sample, 3)
+    (8, 0.274)
     """
     p = check_open_probability(prevalence, "prevalence")
     limit = check_max_pool_size(max_pool_size)

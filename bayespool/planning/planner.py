@@ -100,6 +100,49 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     tests while they leave specimens inconclusive. ``exact_memo``: an
     :class:`~bayespool.decoders.exact.ExactMemo` kept across rounds (the closed loop), so components
     drawn before are not enumerated again (the same draws).
+
+    Parameters
+    ----------
+    run : Run
+        The run so far; an empty layout with a samples file plans a first stage.
+    assay : Assay
+        Specificity and Se(k, d).
+    posterior : Posterior, optional
+        The run's decoded posterior.
+    tests : int
+        At most this many pools (one readout each).
+    max_pool_size : int
+        At most this many specimens per pool.
+    seed : int or numpy.random.Generator, optional
+        Random seed of the posterior draws (reproducible plans).
+    n_draws : int
+        Joint posterior draws the information is estimated over.
+
+    Returns
+    -------
+    Plan
+        The planned pools (``to_frame()``: the layout of the next tests, one row per membership).
+
+    Raises
+    ------
+    InputError
+        A bad option (naming the parameter), or an assay that covers no allowed pool size.
+
+    References
+    ----------
+    Expected information gain estimated on joint posterior draws, chosen greedily (Bayesian
+    sequential experimental design; for pooled tests e.g. Cuturi, Teboul & Vert (2020),
+    arXiv:2004.12508).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> assay = bayespool.read_assay("datasets/demo/assay.toml")
+    >>> nxt = bayespool.plan(run, assay, tests=4, seed=1)
+    >>> nxt.n_tests, list(nxt.to_frame().columns[:2])
+    (4, ['pool', 'sample'])
     """
     tests = check_count(tests, "tests", 1)
     max_pool_size = check_count(max_pool_size, "max_pool_size", 1)

@@ -27,6 +27,20 @@ class Plan(Result):
 
     ``to_frame()`` is the layout of the planned pools, one row per membership (index
     ``membership``), in the columns of :data:`COLUMNS`.
+
+    References
+    ----------
+    Expected information gain from joint posterior draws (Cuturi, Teboul & Vert (2020),
+    arXiv:2004.12508).
+
+    Examples
+    --------
+    >>> from bayespool import decode, plan, read_assay, read_run
+    >>> files = [f"datasets/demo/{name}.csv" for name in ("layout", "readouts", "samples")]
+    >>> run, assay = read_run(*files), read_assay("datasets/demo/assay.toml")
+    >>> result = plan(run, assay, posterior=decode(run, assay), tests=3, seed=2)
+    >>> result.summary()["tests"], result.to_frame().index.name
+    (3, 'membership')
     """
 
     sample_ids: np.ndarray

@@ -150,6 +150,11 @@ def write_report(path, *, run=None, assay=None, posterior=None, plan=None, calib
         ``plan`` is not a Plan, the path is an input or lies in no existing folder, or there is
         nothing to report.
 
+    References
+    ----------
+    The page is one HTML5 document (WHATWG HTML Living Standard) with inline SVG and a
+    Content-Security-Policy (W3C CSP Level 3) that forbids every fetch, so it opens offline.
+
     Examples
     --------
     >>> import bayespool, tempfile, pathlib

@@ -34,6 +34,13 @@ class Simulation(Result):
 
     ``to_frame()`` has one row per characteristic (index ``characteristic``): the estimate and its
     Monte Carlo standard error; ``runs_frame`` keeps the per-run counts.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> sim = bayespool.simulate("individual", 30, prevalence=0.1, runs=10, seed=1)
+    >>> float(sim.to_frame().loc["tests_per_sample", "estimate"])
+    1.0
     """
 
     scheme: str
@@ -108,6 +115,36 @@ def simulate(scheme, samples, *, prevalence: float | None = None, assay: Assay |
         A bar on stderr (cohorts done of total, time left).
     on_estimate : callable, optional
         Called with the pilot's :class:`~bayespool.simulation.engine.Estimate` before the study.
+    samples : int, str or Specimens
+        Specimens per cohort, or a samples file whose ``prior`` column is used.
+    prevalence : float, optional
+        Prior of every specimen (without priors in the samples file).
+    assay : Assay, optional
+        The assay that draws the readouts (default: constant Se 0.95, Sp 0.99).
+    runs : int
+        Simulated cohorts.
+
+    Returns
+    -------
+    Simulation
+        The operating characteristics with Monte Carlo standard errors (``to_frame()`` indexed by
+        characteristic) and the closed forms where known.
+
+    Raises
+    ------
+    InputError
+        An unknown scheme or a bad option (naming the parameter).
+
+    References
+    ----------
+    Closed forms beside the estimates: Dorfman (1943); Kim et al. (2007), Biometrics 63(4).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> sim = bayespool.simulate("dorfman", 40, prevalence=0.05, pool_size=4, runs=20, seed=1)
+    >>> sim.to_frame().index[:3].tolist()
+    ['tests_per_sample', 'sensitivity', 'specificity']
     """
     cohort = samples if isinstance(samples, Cohort) else make_cohort(samples, prevalence)
     assay = DEFAULT_ASSAY if assay is None else assay
@@ -123,6 +160,13 @@ class Sweep(Result):
 
     ``to_frame()`` is ``table`` with one row per setting (index ``setting``); ``summary()`` is
     ``{"points": [...]}``, one simulation's summary (plus its setting) per point.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> study = bayespool.sweep("individual", 30, prevalences=[0.05, 0.1], runs=10, seed=1)
+    >>> len(study.summary()["points"]), study.to_frame().index.name
+    (2, 'setting')
     """
 
     results: list
@@ -216,6 +260,29 @@ def sweep(scheme, samples, *, prevalences=None, pool_sizes=None, assay: Assay | 
         whatever the scheme, pool size, assay or thresholds (common random numbers, so
         differences between schemes are measured on the same specimens). All cells' cohorts go
         out as one batch of tasks.
+
+    Returns
+    -------
+    Sweep
+        One simulation per setting (``to_frame()``: one row per setting).
+
+    Raises
+    ------
+    InputError
+        A scheme that is not registered, or a swept value out of range (naming the parameter).
+
+    References
+    ----------
+    Common random numbers for comparing simulated systems (e.g. Law & Kelton, Simulation Modeling
+    and Analysis; from memory); closed forms as in :func:`simulate`.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> study = bayespool.sweep(["dorfman", "individual"], 40, prevalences=[0.02, 0.05],
+    ...                         pool_size=4, runs=10, seed=1)
+    >>> len(study.to_frame()), sorted(set(study.to_frame()["scheme"]))
+    (4, ['dorfman', 'individual'])
     """
     schemes = _as_list(scheme)
     if not schemes:
