@@ -391,7 +391,7 @@ def _judge(run, assay, post: Posterior, rule, lik, comps, seed, expectations: bo
         post.warnings.extend(batch_warnings(post.batch, rule))
     if model_check:
         from ..modelcheck import check_model
-        check = check_model(run, assay, post, seed=seed)
+        check = check_model(run, assay, seed=seed)
         post.model_check = check.summary()
         post.warnings.extend(check.warnings)
     return post
