@@ -387,7 +387,7 @@ def read_assay(path) -> Assay:
     >>> import bayespool
     >>> assay = bayespool.read_assay("datasets/demo/assay.toml")
     >>> assay.sensitivity.model, round(assay.specificity, 4)
-    ('dilution', 0.9967)
+    ('ct', 0.9883)
     """
     return Assay.read(path)
 

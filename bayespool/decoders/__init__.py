@@ -309,7 +309,7 @@ def decode(run: Run, assay, *, method: str = "auto",
     ...                          "datasets/demo/samples.csv")
     >>> posterior = bayespool.decode(run, bayespool.read_assay("datasets/demo/assay.toml"))
     >>> posterior.counts()
-    {'positive': 4, 'negative': 279, 'inconclusive': 5, 'untested': 0}
+    {'positive': 8, 'negative': 279, 'inconclusive': 1, 'untested': 0}
     >>> posterior.to_frame().loc["SW1-A1", "call"]
     'negative'
     """

@@ -218,10 +218,7 @@ def decode_group(model, run, stats, samples, pools, loglik_ptr, loglik, nodes,
     w = np.array(state_w)
     log_z = float(_logsumexp(w, axis=0)) if len(w) else -np.inf
     if not np.isfinite(log_z):
-        raise ImpossibleEvidenceError(
-            "no status of the specimens " + ", ".join(str(run.sample_ids[s]) for s in samples)
-            + " explains the readouts of pools "
-            + ", ".join(str(run.pool_ids[t]) for t in pools) + " under the Ct model")
+        raise impossible_group(run, samples, pools)
     post = np.exp(w - log_z)
     prob = np.zeros(m)
     counts = np.zeros(m + 1)
@@ -237,6 +234,14 @@ def decode_group(model, run, stats, samples, pools, loglik_ptr, loglik, nodes,
             elif not np.isnan(ct_marg[j, 0]):
                 ct_marg[j] = np.logaddexp(ct_marg[j], math.log(pw) + marg[j])
     return np.minimum(prob, 1.0), ct_marg, log_z, counts, omitted
+
+
+def impossible_group(run, samples, pools) -> ImpossibleEvidenceError:
+    """The error for a linked group whose readouts no status vector explains."""
+    return ImpossibleEvidenceError(
+        "no status of the specimens " + ", ".join(str(run.sample_ids[s]) for s in samples)
+        + " explains the readouts of pools "
+        + ", ".join(str(run.pool_ids[t]) for t in pools) + " under the Ct model")
 
 
 def ct_summary(nodes, log_marginal, level: float = 0.95):

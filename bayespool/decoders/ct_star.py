@@ -26,7 +26,7 @@ import numpy as np
 from numba import njit
 
 from ..ct import _logsumexp
-from ..errors import ImpossibleEvidenceError
+from .ct_exact import impossible_group
 
 PRUNE = 1e-18   # lattice masses below this fraction of a distribution's largest are dropped
 
@@ -225,10 +225,7 @@ def star_pass(model, run, stats, samples, pools, hub: int, loglik_ptr, loglik, n
                                                 None else -np.inf for c in range(1, m + 1)])
     log_z = float(_logsumexp(counts_log, axis=0))
     if not np.isfinite(log_z):
-        raise ImpossibleEvidenceError(
-            "no status of the specimens " + ", ".join(str(run.sample_ids[x]) for x in samples)
-            + " explains the readouts of pools "
-            + ", ".join(str(run.pool_ids[t]) for t in pools) + " under the Ct model")
+        raise impossible_group(run, samples, pools)
     counts = np.exp(counts_log - log_z)
 
     # each member's marginal from the members before and after it

@@ -53,7 +53,7 @@ class Posterior(Result):
     >>> posterior["SW1-A1"]["call"], posterior.to_frame().index.name
     ('negative', 'sample')
     >>> print(str(posterior).splitlines()[0])
-    288 samples, 84 pools, 84 readouts, decoded by exact: 4 positive, 279 negative, 5 inconclusive
+    288 samples, 84 pools, 84 readouts, decoded by exact: 8 positive, 279 negative, 1 inconclusive
     """
 
     sample_ids: np.ndarray

@@ -142,7 +142,7 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     >>> assay = bayespool.read_assay("datasets/demo/assay.toml")
     >>> nxt = bayespool.plan(run, assay, tests=4, seed=1)
     >>> nxt.n_tests, list(nxt.to_frame().columns[:2])
-    (4, ['pool', 'sample'])
+    (1, ['pool', 'sample'])
     """
     tests = check_count(tests, "tests", 1)
     max_pool_size = check_count(max_pool_size, "max_pool_size", 1)

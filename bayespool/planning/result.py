@@ -40,7 +40,7 @@ class Plan(Result):
     >>> run, assay = read_run(*files), read_assay("datasets/demo/assay.toml")
     >>> result = plan(run, assay, posterior=decode(run, assay), tests=3, seed=2)
     >>> result.summary()["tests"], result.to_frame().index.name
-    (3, 'membership')
+    (1, 'membership')
     """
 
     sample_ids: np.ndarray
