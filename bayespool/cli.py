@@ -600,18 +600,31 @@ def _announce_estimate(estimate) -> None:
 
 def _run_simulate(args):
     from .simulation.engine import cluster_client
+    from .simulation.simulator import Sweep
+    from .simulation.study import run_study
     if args.workers is not None and args.workers < 1:
         raise InputError(f"--workers must be at least 1, got {args.workers}")
-    _check_simulate(args)
+    study = _check_simulate(args)
     with cluster_client(args.workers, args.scheduler) as client:
-        return _simulate_on(args, client)
-
-
-def _simulate_options(args) -> dict:
-    return {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
-            "tests": args.tests, "method": args.method,
-            "target_sensitivity": args.target_sensitivity,
-            "max_false_discovery": args.max_false_discovery}
+        result = run_study(args.schemes, args.samples, assays=args.assays, seed=args.seed,
+                           progress=sys.stderr.isatty(), client=client,
+                           on_estimate=_announce_estimate, **study)
+    study = result if isinstance(result, Sweep) else Sweep([result])
+    table, audit = study.table, _audit(args, args.input_files)
+    written = []
+    if args.out:
+        from .io import write_frame
+        write_frame(table, args.out)
+        written.append(args.out)
+    if args.plots:
+        from .simulation.plots import write_plots
+        written += [str(p) for p in write_plots(table, args.plots)]
+    if args.report:
+        from .report.study import write_study_report
+        write_study_report(args.report, study, audit=audit)
+        written.append(args.report)
+    _emit(args, result, text=str(result) + (f"\nwrote {', '.join(written)}" if written else ""))
+    return 0
 
 
 def _comma_names(text: str, what: str) -> list[str]:
@@ -623,14 +636,14 @@ def _comma_names(text: str, what: str) -> list[str]:
     return names
 
 
-def _check_simulate(args):
-    """Every option checked before any work (and before a cluster starts)."""
+def _check_simulate(args) -> dict:
+    """The study's options, checked before any work (and before a cluster starts)."""
     from pathlib import Path
 
     from .assay import DEFAULT_ASSAY, Assay
+    from .design.specimens import specimens
     from .io import check_outputs
-    from .simulation.protocols import accepted_options, make_protocol
-    from .validation import check_count, check_open_probability
+    from .simulation.study import check_study
     args.schemes = _comma_names(args.scheme, "--scheme")
     args.assay_files = _comma_names(args.assay, "--assay") if args.assay else []
     outputs = {f"--{k}": getattr(args, k) for k in ("out", "report") if getattr(args, k)}
@@ -646,81 +659,20 @@ def _check_simulate(args):
     args.input_files.update({f"--assay {f}" if len(args.assay_files) > 1 else "--assay": f
                              for f in args.assay_files})
     check_outputs(outputs, args.input_files)
-    accepted = {s: accepted_options(s) for s in args.schemes}  # unknown schemes fail here
-    for option, value in (("pool_size", args.pool_size), ("rows", args.rows),
-                          ("cols", args.cols), ("tests", args.tests), ("method", args.method),
-                          ("target_sensitivity", args.target_sensitivity),
-                          ("max_false_discovery", args.max_false_discovery)):
-        if value is not None and not any(a is None or option in a for a in accepted.values()):
-            raise InputError(f"--{option.replace('_', '-')} does not apply to the "
-                             f"{', '.join(args.schemes)} scheme{'s' if len(accepted) > 1 else ''}")
-    options = _simulate_options(args)
-    for scheme in args.schemes:  # checks the options before any work
-        for k in args.pool_size or [None]:
-            for lo in args.negative_below or [None]:
-                for hi in args.positive_above or [None]:
-                    make_protocol(scheme, pool_size=k, negative_below=lo, positive_above=hi,
-                                  **options)
-    for p in args.prevalence or []:
-        check_open_probability(p, "prevalence")
-    check_count(args.runs, "runs")
-    from .design.specimens import specimens
+    study = {"prevalences": args.prevalence, "pool_sizes": args.pool_size,
+             "negative_below": args.negative_below, "positive_above": args.positive_above,
+             "runs": args.runs, "rows": args.rows, "cols": args.cols,
+             "max_pool_size": args.max_pool_size, "tests": args.tests, "method": args.method,
+             "target_sensitivity": args.target_sensitivity,
+             "max_false_discovery": args.max_false_discovery}
+    check_study(args.schemes, **study)
     args.samples = specimens(args.samples)
     if args.assay_files:
         args.assays = {f: Assay.read(f) for f in args.assay_files}
     else:
         _note(args, f"no --assay given: assuming {DEFAULT_ASSAY.describe()}")
         args.assays = {None: DEFAULT_ASSAY}
-
-
-def _single_cell(args) -> bool:
-    return all(v is None or len(v) == 1 for v in (
-        args.schemes, args.prevalence, args.pool_size, list(args.assays),
-        args.negative_below, args.positive_above))
-
-
-def _simulate_on(args, client):
-    from .io import write_frame
-    from .simulation import simulate, sweep
-    from .simulation.simulator import Sweep
-    prevs, sizes = args.prevalence, args.pool_size
-    options = _simulate_options(args)
-    progress = sys.stderr.isatty()
-    where = {"client": client, "on_estimate": _announce_estimate}
-    lo, hi = args.negative_below, args.positive_above
-    if _single_cell(args):
-        [assay] = args.assays.values()
-        sim = simulate(args.schemes[0], args.samples, prevalence=prevs[0] if prevs else None,
-                       assay=assay, runs=args.runs, seed=args.seed, progress=progress,
-                       pool_size=sizes[0] if sizes else None,
-                       negative_below=lo[0] if lo else None,
-                       positive_above=hi[0] if hi else None, **where, **options)
-        result = Sweep([sim])
-    else:
-        many = len(args.assays) > 1
-        result = sweep(args.schemes, args.samples, prevalences=prevs,
-                       pool_sizes=sizes if sizes and len(sizes) > 1 else None,
-                       assay=None if many else next(iter(args.assays.values())),
-                       runs=args.runs, seed=args.seed, progress=progress,
-                       assays=args.assays if many else None, negative_below=lo,
-                       positive_above=hi, **where,
-                       **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}),
-                       **options)
-    table = result.table
-    if args.out:
-        write_frame(table, args.out)
-    written = [args.out] if args.out else []
-    if args.plots:
-        from .simulation.plots import write_plots
-        written += [str(p) for p in write_plots(table, args.plots)]
-    audit = _audit(args, args.input_files)
-    if args.report:
-        from .report.study import write_study_report
-        write_study_report(args.report, result, audit=audit)
-        written.append(args.report)
-    shown = result.results[0] if len(result.results) == 1 and _single_cell(args) else result
-    _emit(args, shown, text=str(result) + (f"\nwrote {', '.join(written)}" if written else ""))
-    return 0
+    return study
 
 
 # ---- calibrate
@@ -789,18 +741,13 @@ def _run_calibrate_ct(args, table):
 
 
 def _run_calibrate(args):
-    from .calibration import calibrate_runs, calibrate_validation
+    from .calibration import calibrate
     from .calibration.plot import figure, plot_paths, write_plots
     from .calibration.validation import ValidationData
-    from .run import Run
     if args.validation and (args.layout or args.readouts or args.samples):
         raise InputError("give either --validation or --layout/--readouts, not both")
     if not args.validation and not (args.layout and args.readouts):
         raise InputError("give --validation, or --layout and --readouts of past runs")
-    if args.gof_draws < 0:
-        raise InputError(f"--gof-draws must be >= 0, got {args.gof_draws}")
-    if args.gof_draws and not args.validation:
-        raise InputError("--gof-draws applies to validation data only")
     fixed = {}
     for name, value in args.fix:
         if name in fixed:
@@ -809,31 +756,28 @@ def _run_calibrate(args):
     plots = {} if args.no_plot else plot_paths(args.out)
     _check_outputs(args, {f"the {kind.upper()} plot beside --out": str(path)
                           for kind, path in plots.items()}, out=args.out, report=args.report)
-    run = None
+    data = run = None
     words = _result_words(args)
     if args.validation:
         from .io import read_table
         table = read_table(args.validation, ["pool_size", "positives", "result"], "validation")
         if "ct" in table.header:
             return _run_calibrate_ct(args, table)
-    if args.validation:
         data = ValidationData.read(args.validation, words=words)
-        result = calibrate_validation(data, args.model, fixed, level=args.level,
-                                      intervals=args.intervals, gof_draws=args.gof_draws,
-                                      seed=args.seed)
     else:
+        from .run import Run
         run = Run.read(args.layout, args.readouts, args.samples, result_words=words)
-        result = calibrate_runs(run, args.model, fixed, level=args.level,
-                                intervals=args.intervals)
-        if not args.allow_unidentified:
-            result.check_identified()
+    result = calibrate(data, run, model=args.model, fixed=fixed, level=args.level,
+                       intervals=args.intervals, gof_draws=args.gof_draws, seed=args.seed)
+    if run is not None and not args.allow_unidentified:
+        result.check_identified()
     fig = figure(result) if plots else None
     result.assay.write(args.out)
     if plots:
         write_plots(result, args.out, fig)
     written = [args.out] + [str(p) for p in plots.values()]
     if args.report:
-        _write_report(args, run=run if not args.validation else None, assay=result.assay,
+        _write_report(args, run=run, assay=result.assay,
                       calibration=result, title="bayespool calibration report")
         written.append(args.report)
     if args.json:

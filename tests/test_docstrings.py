@@ -30,12 +30,15 @@ def test_numpydoc_sections(name):
     assert set(need) <= have, f"{name} lacks {sorted(set(need) - have)}"
 
 
-@pytest.mark.parametrize("name", NAMES + ["assay_curve.assay_curve"])
+MORE = ["assay_curve.assay_curve", "simulation.study.check_study", "simulation.study.run_study"]
+
+
+@pytest.mark.parametrize("name", NAMES + MORE)
 def test_examples_run_as_written(name, monkeypatch):
     monkeypatch.chdir(ROOT)  # the examples read datasets/ relative to the repository root
     if "." in name:
         import importlib
-        module, attr = name.split(".")
+        module, attr = name.rsplit(".", 1)
         obj = getattr(importlib.import_module(f"bayespool.{module}"), attr)
     else:
         obj = getattr(bayespool, name)
