@@ -729,7 +729,8 @@ def _add_calibrate(sub, shared):
 def _run_calibrate_ct(args, table):
     """A validation file with Cts: fit the [ct] load model (bayespool.calibration.ct_fit)."""
     from .calibration.ct_fit import calibrate_ct
-    result = calibrate_ct(table, cutoff=args.ct_cutoff, level=args.level)
+    result = calibrate_ct(table, cutoff=args.ct_cutoff, level=args.level,
+                          gof_draws=args.gof_draws)
     result.assay.write(args.out)
     if args.report:
         _write_report(args, assay=result.assay, calibration=result,

@@ -167,11 +167,16 @@ def fit_mixture(values, max_components: int = 3, seed: int = 0):
     return w, m, sd, bics
 
 
-def calibrate_ct(table, *, cutoff: float = 40.0, level: float = 0.95):
+def calibrate_ct(table, *, cutoff: float = 40.0, level: float = 0.95, gof_draws: int = 0):
     """Fit the ``[ct]`` assay from a validation table (pool_size, positives, result, ct,
-    individual_ct) read by :func:`bayespool.io.read_table`; intervals at ``level``."""
+    individual_ct) read by :func:`bayespool.io.read_table`; intervals at ``level``.
+    ``gof_draws`` (the binary fits' bootstrap) must be 0: the Ct fit has no such test."""
+    from ..validation import check_count
     from .fit import check_options
     level = check_options("best", level, "profile")
+    if check_count(gof_draws, "gof_draws", 0):
+        raise InputError("gof_draws applies to the binary sensitivity fits; the Ct fit has no "
+                         "parametric bootstrap test", parameters=("gof_draws",))
     from ..assay import Assay
     from ..ct import CtModel, CtSensitivity
     from ..run import parse_results
