@@ -106,7 +106,7 @@ def test_ct_sections_render_with_their_figures(browser, demo):
     ct = dom.by_id("ct")
     assert ct is not None and len(ct.find_all("svg")) == 2
     frame = demo.result.posterior.to_frame()
-    estimated = frame.loc[np.isfinite(frame["ct_mean"].to_numpy(float)), "sample"]
+    estimated = frame.index[np.isfinite(frame["ct_mean"].to_numpy(float))]
     figure_text = ct.find_all("svg")[0].text()
     assert len(estimated) and all(str(s) in figure_text for s in estimated)
     import pandas as pd

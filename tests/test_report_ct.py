@@ -70,7 +70,7 @@ def test_ct_section_shows_the_read_cts_and_the_posterior_estimates(assay):
     assert lone == pytest.approx((30.4 + 30.9) / 2 - 2.0, abs=1e-9)
     assert float(by_pool["I0"]["lone_positive_ct"].attrs["data-value"]) == pytest.approx(28.6)
     # each specimen's estimate is the posterior's own column, to the CSV's precision
-    frame = post.to_frame().set_index("sample")
+    frame = post.to_frame()
     specimens = rows_of(sec.find("table", class_=has("ct-specimens")))
     shown = {r["sample"].text(): r for r in specimens}
     want = frame.index[np.isfinite(frame["ct_mean"].to_numpy(float))]
