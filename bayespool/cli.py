@@ -28,6 +28,7 @@ FLAGS = {
     'gibbs_options["max_sweeps"]': "--gibbs-sweeps",
     'gibbs_options["prevalence_prior"]': "--prevalence-prior",
     'fixed["specificity"]': "--fix specificity=VALUE",
+    'fixed["se_max"]': "--fix se_max=VALUE",
     "result_words": "--result-word",
     "plate_size": "--destination-plate-size",
     "prefix": "--destination-prefix",

@@ -199,3 +199,20 @@ def test_json_is_the_summary(demo, cli, tmp_path):
     curve = _assay_curve(demo)
     out = _cli_text(cli, "assay", DEMO / "assay.toml", "--pool-sizes", "1,4,16", "--json")
     assert json.loads(out) == json.loads(json.dumps(curve.summary()))
+
+
+def test_write_report_takes_the_plan_and_renders_what_its_table_renders(demo, tmp_path):
+    from bayespool.errors import InputError
+    from bayespool.report import build_report
+    run, assay = demo
+    post = _posterior(demo)
+    nxt = _plan(demo)
+    path = bayespool.write_report(tmp_path / "r.html", run=run, assay=assay, posterior=post,
+                                  plan=nxt, created="2026-01-01")
+    same = build_report(run, assay, post, file_frame(nxt.to_frame()), created="2026-01-01",
+                        file_name="r.html")
+    assert path.read_text(encoding="utf-8") == same
+    # a DataFrame is not a result: the error names the parameter, and nothing is written
+    with pytest.raises(InputError) as info:
+        bayespool.write_report(tmp_path / "frame.html", posterior=post, plan=nxt.to_frame())
+    assert "plan" in info.value.parameters and not (tmp_path / "frame.html").exists()
