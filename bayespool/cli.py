@@ -28,6 +28,7 @@ FLAGS = {
     'gibbs_options["max_sweeps"]': "--gibbs-sweeps",
     'gibbs_options["prevalence_prior"]': "--prevalence-prior",
     'fixed["specificity"]': "--fix specificity=VALUE",
+    'fixed["se_max"]': "--fix se_max=VALUE",
     "result_words": "--result-word",
     "plate_size": "--destination-plate-size",
     "prefix": "--destination-prefix",
@@ -289,7 +290,7 @@ def _add_assay(sub, shared):
 
 def _run_assay(args):
     from .assay import Assay
-    from .assay_curve import assay_curve
+    from .assay_view import assay_curve
     plot = args.plot
     if plot:
         _check_outputs(args, plot=plot)
