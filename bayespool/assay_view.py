@@ -61,8 +61,9 @@ class AssayCurve(Result):
         return "\n".join(lines)
 
     def _brief(self) -> str:
-        return (f"{self.assay.describe()}, pool sizes {self.pool_sizes[0]} to "
-                f"{self.pool_sizes[-1]}")
+        return (f"{self.assay.sensitivity.model} sensitivity, specificity "
+                f"{self.assay.specificity:.6g}, pool sizes {self.pool_sizes[0]} to "
+                f"{self.pool_sizes[-1]}")  # one line whatever the model (a Ct model is long)
 
 
 def assay_curve(assay: Assay, *, pool_sizes=None, source: str | None = None) -> AssayCurve:
