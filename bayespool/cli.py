@@ -169,7 +169,7 @@ def _load_inputs(args):
                                        getattr(args, "controls", None),
                                        prevalence=args.prevalence,
                                        result_words=_result_words(args, assay))
-    run.sources["assay"] = args.assay
+    run = run.with_sources(assay=args.assay)
     if not args.assay:
         _note(args, f"no --assay given: assuming {assay.describe()}")
     if getattr(args, "assay_uncertainty", False):
@@ -1306,7 +1306,7 @@ def _run_regress(args):
         from .assay import Assay
         assay = Assay.read(args.assay)
     run = Run.read(args.layout, args.readouts, args.samples)
-    run.sources["assay"] = args.assay
+    run = run.with_sources(assay=args.assay)
     if assay is None:
         from .assay import PERFECT_ASSAY
         assay = PERFECT_ASSAY

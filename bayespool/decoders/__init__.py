@@ -41,7 +41,7 @@ LOOPY_BUDGET = 2.0 ** 36
 
 def _check_pools_possible(run: Run, lik_ptr, loglik):
     """A pool whose every count d has likelihood zero cannot be explained by anything."""
-    tested = np.flatnonzero((run.n_positive + run.n_negative) > 0)
+    tested = np.flatnonzero(run.pool_read)
     finite = np.isfinite(loglik)
     any_ok = np.add.reduceat(finite, lik_ptr[:-1]) > 0 if len(loglik) else np.zeros(0, bool)
     dead = tested[~any_ok[tested]]
@@ -53,7 +53,7 @@ def sample_columns(run: Run) -> dict:
     """Per-specimen counts of read pools and of pools with a positive readout, and the plate and
     well of the samples file when it gives them (so the posterior can be found on the bench)."""
     owner_pos = np.repeat((run.n_positive > 0), run.pool_size)
-    owner_read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
+    owner_read = np.repeat(run.pool_read, run.pool_size)
     n = run.n_samples
     out = {"pools": np.bincount(run.pool_members[owner_read], minlength=n),
            "positive_pools": np.bincount(run.pool_members[owner_pos], minlength=n)}

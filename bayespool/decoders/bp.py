@@ -503,7 +503,7 @@ def _impossible_at(run, comps, t, i):
         pools = np.array([t])
     else:
         pools = run.pools_of(i)
-        pools = pools[(run.n_positive[pools] + run.n_negative[pools]) > 0]
+        pools = pools[run.pool_read[pools]]
     return impossible(run, pools)
 
 

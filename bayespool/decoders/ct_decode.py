@@ -32,7 +32,7 @@ SHARED_NOTE = ("belief propagation on per-pool Ct likelihoods ignores that a spe
 
 def shared_components(run, comps) -> np.ndarray:
     """Per component: does some specimen lie in two or more read pools?"""
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     owner = np.repeat(read, run.pool_size)
     n_read = np.bincount(run.pool_members[owner], minlength=run.n_samples)
     shared = np.zeros(comps.n_components, dtype=bool)
@@ -208,7 +208,7 @@ def finish_ct(post, run, assay, options, choice) -> None:
     approximate elsewhere) and say how the Cts were used."""
     cols = options["ct_columns"]
     lo = options["negative_below"]
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     in_read = np.bincount(run.pool_members[np.repeat(read, run.pool_size)],
                           minlength=run.n_samples) > 0
     todo = np.flatnonzero((post.probability >= lo) & np.isnan(cols["ct_mean"]) & in_read)

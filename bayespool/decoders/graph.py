@@ -38,11 +38,6 @@ class Components:
         return self.pools[self.pool_ptr[c]:self.pool_ptr[c + 1]]
 
 
-def read_pools(run: Run) -> np.ndarray:
-    """Boolean mask of pools with at least one readout."""
-    return (run.n_positive + run.n_negative) > 0
-
-
 @njit(cache=True)
 def _union_find_labels(pool_ptr, pool_members, read, n_samples):
     """Component label of every sample, numbered by first appearance (union-find with halving)."""
@@ -82,7 +77,7 @@ def _union_find_labels(pool_ptr, pool_members, read, n_samples):
 def components(run: Run) -> Components:
     """Connected components of samples linked through read pools (numbered by first appearance)."""
     n = run.n_samples
-    read = read_pools(run)
+    read = run.pool_read
     sample_label, n_comp = _union_find_labels(run.pool_ptr, run.pool_members, read, n)
     sptr, samples = csr(sample_label.astype(np.int64), np.arange(n, dtype=np.int32), n_comp)
     read_idx = np.flatnonzero(read)

@@ -83,7 +83,7 @@ def generate(run, probability: np.ndarray, undecided: np.ndarray, comps, max_poo
     sizes = pool_sizes(max_pool_size, allowed)
     items: list = []
     # replicates of read pools with an undecided member
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     for t in np.flatnonzero(read):
         mem = run.members(t)
         k = len(mem)

@@ -48,7 +48,7 @@ def _draws_left(run, max_draws) -> np.ndarray:
 
 def untested(run) -> np.ndarray:
     """True for specimens in no read pool: a prior alone never decides a specimen, however low."""
-    read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
+    read = np.repeat(run.pool_read, run.pool_size)
     return np.bincount(run.pool_members[read], minlength=run.n_samples) == 0
 
 

@@ -1,7 +1,7 @@
 """The result of planning: the next pools, what each should tell, and how to fold them in."""
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -71,19 +71,23 @@ class Plan:
                 "kinds": {k: v for k, v in kinds.items() if v}, "stop": self.stop,
                 "draws": self.n_draws, "notes": list(self.notes)}
 
-    def extend(self, run: Run, positive) -> Run:
-        """``run`` with the planned pools added and read once each (``positive``: bool per pool)."""
+    def extend(self, run: Run, positive, ct=None) -> Run:
+        """A new run: ``run`` with the planned pools added and read once each (``positive``: bool
+        per pool; ``ct``: each readout's Ct, NaN for none, under a [ct] assay)."""
         positive = np.asarray(positive, dtype=bool)
         if len(positive) != self.n_tests:
             raise ValueError(f"{len(positive)} readouts for {self.n_tests} planned pools")
         old_owner = np.repeat(np.arange(run.n_pools), run.pool_size)
         new_owner = run.n_pools + np.repeat(np.arange(self.n_tests), self.pool_size)
         n_pools = run.n_pools + self.n_tests
-        out = Run.from_arrays(np.concatenate([old_owner, new_owner]),
-                              np.concatenate([run.pool_members, self.pool_members]),
-                              run.n_samples, n_pools, run.prior, sample_ids=run.sample_ids,
-                              pool_ids=np.concatenate([run.pool_ids, self.pool_ids]))
-        out.n_positive = np.concatenate([run.n_positive, positive.astype(np.int32)])
-        out.n_negative = np.concatenate([run.n_negative, (~positive).astype(np.int32)])
-        out.samples, out.sources, out.notes = run.samples, dict(run.sources), list(run.notes)
-        return out
+        grown = Run.from_arrays(np.concatenate([old_owner, new_owner]),
+                                np.concatenate([run.pool_members, self.pool_members]),
+                                run.n_samples, n_pools, run.prior, sample_ids=run.sample_ids,
+                                pool_ids=np.concatenate([run.pool_ids, self.pool_ids]))
+        new_pools = run.n_pools + np.arange(self.n_tests)
+        return replace(run, pool_ids=grown.pool_ids, pool_ptr=grown.pool_ptr,
+                       pool_members=grown.pool_members, sample_ptr=grown.sample_ptr,
+                       sample_pools=grown.sample_pools,
+                       n_positive=np.concatenate([run.n_positive, positive.astype(np.int32)]),
+                       n_negative=np.concatenate([run.n_negative, (~positive).astype(np.int32)]),
+                       readout_ct=run.more_ct(new_pools, positive.astype(np.int64), ct))
