@@ -1109,7 +1109,8 @@ def _run_plan(args):
     post = decode(run, assay, method=args.method, seed=args.seed, **_targets(args))
     result = plan(run, assay, posterior=post, tests=args.tests, max_pool_size=args.max_pool_size,
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
-                  min_information=args.min_information, max_linked=args.max_linked)
+                  min_information=args.min_information, max_linked=args.max_linked,
+                  pool_volume=args.pool_volume if args.worklist else None)
     frame = result.to_frame()
     wl = None
     if args.worklist:

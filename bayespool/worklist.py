@@ -189,15 +189,25 @@ def build_worklist(layout: pd.DataFrame, samples: pd.DataFrame, *,
     return Worklist(frame, destinations, pool_volume, plate_size, volumes, notes)
 
 
-def _volumes_left(samples, ids, at, volume) -> pd.DataFrame:
+def specimen_volumes(samples: pd.DataFrame, ids=None, source=None) -> np.ndarray:
+    """The ``volume_ul`` column of a samples file as microlitres (NaN where blank).
+
+    ``ids`` name the rows in messages (default: the ``sample`` column); ``source`` is the file."""
     raw = samples["volume_ul"].astype(str).str.strip()
     given = (raw != "").to_numpy()
     have = pd.to_numeric(raw.where(given, "nan"), errors="coerce").to_numpy(dtype=float)
     bad = given & ~(np.isfinite(have) & (have >= 0))
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
-        raise InputError(f"volume_ul {raw.iat[i]!r} of {ids[i]!r} must be a number of "
-                         "microlitres >= 0")
+        name = (samples["sample"].astype(str).to_numpy() if ids is None else ids)[i]
+        raise InputError(f"volume_ul {raw.iat[i]!r} of {name!r} must be a number of "
+                         "microlitres >= 0", source, column="volume_ul")
+    return have
+
+
+def _volumes_left(samples, ids, at, volume) -> pd.DataFrame:
+    have = specimen_volumes(samples, ids)
+    given = ~np.isnan(have)
     drawn = np.bincount(at, weights=volume, minlength=len(ids))
     used = np.bincount(at, minlength=len(ids)) > 0
     left = have - drawn

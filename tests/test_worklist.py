@@ -157,3 +157,35 @@ def test_plan_worklist_respects_draws(cli, tmp_path):
     assert sorted(zip(f["pool"], f["sample"])) == sorted(zip(plan["pool"], plan["sample"]))
     used = f["sample"].value_counts()
     assert used.max() <= 1 and not set(used.index) & set(samples["sample"][:20])
+
+
+def test_plan_keeps_every_specimen_within_its_volume():
+    """A plan built by equal-volume transfers never draws more of a specimen than it has: a pool of
+    k takes pool_volume / k of each member, so a specimen with 60 uL left joins no pool of fewer
+    than 4 at 200 uL (and without ``pool_volume`` the planner does not track volume)."""
+    from bayespool import decode, plan, read_assay
+    from bayespool.run import Run
+    n = 48
+    samples = _samples(n)
+    samples["volume_ul"] = ["60"] * 24 + ["400"] * 24
+    layout = pd.DataFrame({"pool": [f"P{i // 8}" for i in range(n)],
+                           "sample": samples["sample"]})
+    readouts = pd.DataFrame({"pool": [f"P{t}" for t in range(6)],
+                             "result": ["positive", "negative", "positive", "negative",
+                                        "positive", "positive"]})
+    run = Run.from_frames(layout, readouts, samples)
+    assay = read_assay("datasets/demo/assay.toml")
+    post = decode(run, assay, seed=1)
+    free = plan(run, assay, posterior=post, tests=30, max_pool_size=8, seed=1)
+    kept = plan(run, assay, posterior=post, tests=30, max_pool_size=8, seed=1, pool_volume=200)
+
+    def drawn(p):
+        f = p.to_frame()
+        f = f[f["kind"] != "replicate"]
+        k = f.groupby("pool")["sample"].transform("size")
+        return (200.0 / k).groupby(f["sample"]).sum()
+
+    have = samples.set_index("sample")["volume_ul"].astype(float)
+    assert (drawn(free) > have[drawn(free).index]).any()  # the limit binds in this case
+    used = drawn(kept)
+    assert len(used) and (used <= have[used.index] + 1e-9).all()

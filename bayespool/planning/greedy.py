@@ -113,13 +113,21 @@ class _Groups:
         return float(sum(self.entropy[r] - self.cond[r] for r in self.table))
 
 
+def _drawn(pool_volume: float, members: np.ndarray) -> float:
+    """Microlitres of each member that an equal-volume pool takes."""
+    return pool_volume / len(members)
+
+
 def select_batch(xt, w, cands, label, comp_size, qtab, n_tests: int, draws_left: np.ndarray,
                  max_linked: int, min_information: float = 0.0,
-                 relative_information: float = 0.0, replicates_use_material: bool = False) -> Batch:
+                 relative_information: float = 0.0, replicates_use_material: bool = False,
+                 volume_left: np.ndarray | None = None, pool_volume: float = 0.0) -> Batch:
     """Pick up to ``n_tests`` candidates greedily by conditional information.
 
     ``xt`` specimens x draws (uint8), ``w`` draw weights, ``label``/``comp_size`` the decoding
-    components, ``draws_left`` how many more times each specimen may be drawn (changed in place).
+    components, ``draws_left`` how many more times each specimen may be drawn (changed in place);
+    ``volume_left`` (microlitres, changed in place, or None) with ``pool_volume``: a pool of k
+    members built by equal-volume transfers draws ``pool_volume / k`` of each.
     The batch stops early when the best remaining gain is below ``min_information`` bits or below
     ``relative_information`` times the first pick's gain.
     """
@@ -146,7 +154,8 @@ def select_batch(xt, w, cands, label, comp_size, qtab, n_tests: int, draws_left:
             break
         heapq.heappop(heap)
         mem = cands.members_of(c)
-        if material[c] and (draws_left[mem] < 1).any():
+        if material[c] and ((draws_left[mem] < 1).any() or (
+                volume_left is not None and (volume_left[mem] < _drawn(pool_volume, mem) - 1e-9).any())):
             continue
         roots = groups.roots(label[mem])
         if ((len(roots) > 1 and groups.size[roots].sum() > max_linked)
@@ -174,6 +183,8 @@ def select_batch(xt, w, cands, label, comp_size, qtab, n_tests: int, draws_left:
         groups.merge(roots, extend(lik, q), h_bt, hc, len(chosen))
         if material[c]:
             draws_left[mem] -= 1
+            if volume_left is not None:
+                volume_left[mem] -= _drawn(pool_volume, mem)
     else:
         stop = "full" if len(chosen) >= n_tests else "candidates"
     return Batch(np.array(chosen, dtype=np.int64), np.array(gains), np.array(probs),

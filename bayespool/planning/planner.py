@@ -8,8 +8,8 @@ import numpy as np
 from ..decoders.graph import components
 from ..defaults import METHODS, NEGATIVE_BELOW, POSITIVE_ABOVE
 from ..errors import InputError
-from ..validation import (check_choice, check_count, check_nonnegative, check_seed,
-                          check_thresholds)
+from ..validation import (check_choice, check_count, check_nonnegative, check_positive,
+                          check_seed, check_thresholds)
 from .candidates import generate
 from . import (DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION,
                DEFAULT_TESTS)
@@ -46,6 +46,23 @@ def _draws_left(run, max_draws) -> np.ndarray:
     return left
 
 
+def _volume_left(run, pool_volume) -> np.ndarray | None:
+    """Microlitres each specimen has (the samples file's ``volume_ul``; no limit where blank), or
+    None when the plan does not track volume."""
+    if pool_volume is None:
+        return None
+    pool_volume = check_positive(pool_volume, "pool_volume")
+    sm = run.samples
+    if sm is None or "volume_ul" not in sm.columns:
+        return None
+    from ..worklist import specimen_volumes
+    have = specimen_volumes(sm, run.sample_ids[sm.index.to_numpy()], run.sources.get("samples"))
+    left = np.full(run.n_samples, np.inf)
+    given = ~np.isnan(have)
+    left[sm.index.to_numpy()[given]] = have[given]
+    return left
+
+
 def untested(run) -> np.ndarray:
     """True for specimens in no read pool: a prior alone never decides a specimen, however low."""
     read = np.repeat(run.pool_read, run.pool_size)
@@ -58,7 +75,8 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
          n_draws: int = DEFAULT_DRAWS, seed=None, min_information: float = DEFAULT_MIN_INFORMATION,
          relative_information: float = 0.0, max_linked: int = DEFAULT_MAX_LINKED,
          method: str = "auto", draws: np.ndarray | None = None, id_prefix: str = "B",
-         replicates_use_material: bool = False, target_sensitivity: float | None = None,
+         replicates_use_material: bool = False, pool_volume: float | None = None,
+         target_sensitivity: float | None = None,
          max_false_discovery: float | None = None, exact_memo=None) -> Plan:
     """Plan up to ``tests`` pools of at most ``max_pool_size`` undecided specimens.
 
@@ -69,7 +87,10 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     ``max_draws``: how many more times a specimen may be drawn in this batch (specimen volume), one
     number or one per specimen; a ``draws_left`` column of the samples file sets it per specimen.
     Replicate reads re-use an existing pool's mix and draw nothing, unless
-    ``replicates_use_material`` (each reading takes a fresh aliquot of every member). ``max_linked``
+    ``replicates_use_material`` (each reading takes a fresh aliquot of every member).
+    ``pool_volume``: microlitres per pool when pools are built by equal-volume transfers (the
+    worklist); with a ``volume_ul`` column in the samples file, no specimen is then drawn beyond
+    the volume it has (a pool of k takes ``pool_volume / k`` of each member). ``max_linked``
     bounds the group of specimens that a planned pool links together by joining groups (so the next
     decode stays exact); tests within one existing group are always allowed. ``min_information``:
     stop when the best remaining test is expected to tell fewer bits; ``relative_information``: or
@@ -128,9 +149,10 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     comps = components(run)
     cands = generate(run, prob, undecided, comps, max_pool_size, allowed)
     left = _draws_left(run, max_draws)
+    volume = _volume_left(run, pool_volume)
     batch = select_batch(xt, w, cands, comps.sample_label, comps.sizes.astype(np.int64), qtab,
                          tests, left, max_linked, min_information, relative_information,
-                         replicates_use_material)
+                         replicates_use_material, volume, pool_volume or 0.0)
     if not len(batch.chosen):
         notes.append("no candidate test is expected to tell anything within the limits "
                      "(material left, pool size, linked group size)")
