@@ -17,7 +17,7 @@ from .defaults import PREVALENCE
 from .io import CodedTable, FrameTable, Table, read_id_table, read_table
 from .results import parse_results, skipped_note
 from .validation import check_open_probability
-from .wells import check_wells
+from .samplesfile import check_samples
 
 _COUNTING_SORT_FROM = 1 << 16  # pairs; below this a NumPy sort is as fast and needs no numba
 
@@ -215,27 +215,15 @@ class Run(PoolIncidence):
         samples_frame = None
         if sm is not None:
             sf = sm.frame
-            blank = np.flatnonzero((sf["sample"] == "").to_numpy())
-            if len(blank):
-                raise sm.error("empty sample ID", blank[0], "sample")
-            dup = sf.duplicated(["sample"]).to_numpy()
-            if dup.any():
-                r = int(np.flatnonzero(dup)[0])
-                raise sm.error(f"sample {sf['sample'].iat[r]!r} is listed twice", r, "sample")
-            check_wells(sm)
+            prior_column = check_samples(sm)
             extra = ~pd.Index(sf["sample"]).isin(pd.Index(sample_ids))
             if extra.any():
                 sample_ids = np.concatenate([sample_ids, sf["sample"].to_numpy()[extra]])
             index = pd.Index(sample_ids)
             pos = index.get_indexer(sf["sample"])
             prior_values = np.full(len(sample_ids), prevalence)
-            if "prior" in sf.columns:
-                vals, given = sm.numbers("prior")
-                bad = given & ~((vals > 0) & (vals < 1))
-                if bad.any():
-                    r = int(np.flatnonzero(bad)[0])
-                    raise sm.error(f"prior {sf['prior'].iat[r].strip()!r} must be a probability "
-                                   "strictly between 0 and 1", r, "prior")
+            if prior_column is not None:
+                vals, given = prior_column
                 prior_values[pos[given]] = vals[given]
             samples_frame = sf.copy()
             samples_frame.index = pos
