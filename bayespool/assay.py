@@ -79,7 +79,14 @@ class Sensitivity(ABC):
 
 @dataclass(frozen=True)
 class ConstantSensitivity(Sensitivity):
-    """Se(k, d) = value for every pool size and count."""
+    """Se(k, d) = value for every pool size and count.
+
+    Examples
+    --------
+    >>> from bayespool import Assay, ConstantSensitivity
+    >>> Assay(0.995, ConstantSensitivity(0.95)).describe()
+    'constant: Se = 0.95, Sp = 0.995'
+    """
 
     value: float
     model: str = field(default="constant", init=False)
@@ -123,6 +130,17 @@ class DilutionSensitivity(Sensitivity):
     (:func:`dilution_point`).
 
     ``r50`` is the dilution at which sensitivity is half of ``se_max``.
+
+    References
+    ----------
+    Hwang, F. K. (1976). Group testing with a dilution effect. Biometrika 63(3).
+
+    Examples
+    --------
+    >>> from bayespool import Assay, DilutionSensitivity
+    >>> assay = Assay(0.995, DilutionSensitivity(0.98, 200.0, 1.5))
+    >>> round(float(assay.se(200, 1)), 2)   # half of se_max at k / d = r50
+    0.49
     """
 
     se_max: float
@@ -144,7 +162,15 @@ class DilutionSensitivity(Sensitivity):
 @dataclass(frozen=True)
 class TableSensitivity(Sensitivity):
     """Se given per (pool size, positives); an entry holds for its count and every larger one up to
-    the next entry of the same pool size."""
+    the next entry of the same pool size.
+
+    Examples
+    --------
+    >>> from bayespool import Assay, TableSensitivity
+    >>> table = TableSensitivity([(4, 1, 0.90), (4, 2, 0.97)])
+    >>> [round(float(Assay(0.99, table).se(4, d)), 2) for d in (1, 2, 3)]
+    [0.9, 0.97, 0.97]
+    """
 
     entries: tuple  # sorted tuples (pool_size, positives, value)
     model: str = field(default="table", init=False)
@@ -246,7 +272,20 @@ def sensitivity_from_dict(table: dict, source: str | None = None) -> Sensitivity
 
 @dataclass(frozen=True)
 class Assay:
-    """Specificity plus a sensitivity family; builds per-pool log-likelihood vectors."""
+    """Specificity plus a sensitivity family; builds per-pool log-likelihood vectors.
+
+    References
+    ----------
+    Dilution effect: Hwang (1976), Biometrika 63(3). Pooled readouts with Se and Sp: Kim et al.
+    (2007), Biometrics 63(4).
+
+    Examples
+    --------
+    >>> from bayespool import Assay, ConstantSensitivity
+    >>> assay = Assay(0.99, ConstantSensitivity(0.95))
+    >>> float(assay.se(4, 1))
+    0.95
+    """
 
     specificity: float
     sensitivity: Sensitivity
@@ -363,7 +402,35 @@ PERFECT_ASSAY = Assay(1.0, ConstantSensitivity(1.0))   # Se = Sp = 1: the classi
 
 
 def read_assay(path) -> Assay:
-    """Read an assay TOML file (interface.md)."""
+    """Read an assay file: the specificity and Se(k, d), or a ``[ct]`` load model.
+
+    Parameters
+    ----------
+    path : str or path-like
+        A TOML file with ``specificity`` and a ``[sensitivity]`` table (model ``constant``,
+        ``dilution`` or ``table``), or a ``[ct]`` table; ``bayespool calibrate`` writes one.
+
+    Returns
+    -------
+    Assay
+
+    Raises
+    ------
+    InputError
+        A missing or unreadable file, or a value out of range (naming the key).
+
+    References
+    ----------
+    TOML v1.0.0 (the file format). The dilution model Se(k, d) = se_max / (1 + (k / (d r50)) ^
+    slope) follows the dilution effect of Hwang (1976), Biometrika 63(3).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> assay = bayespool.read_assay("datasets/demo/assay.toml")
+    >>> assay.sensitivity.model, round(assay.specificity, 4)
+    ('dilution', 0.9967)
+    """
     return Assay.read(path)
 
 

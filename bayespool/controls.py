@@ -28,6 +28,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError
+from .result_protocol import Result
 from .io import Table, read_id_table, read_table
 from .results import parse_results
 from .wells import check_wells, parse_well
@@ -52,8 +53,8 @@ class RowSubset(Table):
         return self.base.error(message, None if row is None else int(self.rows[int(row)]), column)
 
 
-@dataclass
-class ControlCheck:
+@dataclass(repr=False)
+class ControlCheck(Result):
     """What the controls said: one row per control (``controls``), one per plate (``plates``),
     and the readouts left out (``dropped_pools``: pool ID -> readouts dropped)."""
 
@@ -77,18 +78,14 @@ class ControlCheck:
                 "readouts_left_out": int(sum(self.dropped_pools.values())),
                 "pools_left_out": sorted(self.dropped_pools), "messages": list(self.messages)}
 
-    def lines(self) -> list[str]:
-        out = []
-        for r in self.plates.itertuples():
-            out.append(f"plate {r.plate}: controls {r.status} ({r.detail})")
-        return out + self.messages
-
     def __str__(self) -> str:
-        return "\n".join(self.lines())
+        out = [f"plate {r.plate}: controls {r.status} ({r.detail})"
+               for r in self.plates.itertuples()]
+        return "\n".join(out + self.messages)
 
-    def __repr__(self) -> str:
-        return (f"ControlCheck(plates={len(self.plates)}, failed={len(self.failed_plates)}, "
-                f"readouts_left_out={sum(self.dropped_pools.values())})")
+    def _brief(self) -> str:
+        return (f"plates={len(self.plates)}, failed={len(self.failed_plates)}, "
+                f"readouts_left_out={sum(self.dropped_pools.values())}")
 
 
 def _kinds(table: Table, column: str, rows) -> np.ndarray:

@@ -84,6 +84,16 @@ class Run(PoolIncidence):
     ``sources`` (read-only mapping of input role -> file) and ``notes`` (tuple) describe where the
     run came from. A changed run is a new one: :meth:`with_prior`, :meth:`with_readouts`,
     :meth:`with_sources`, :meth:`with_notes` (or ``dataclasses.replace``).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> run.n_samples, run.n_pools
+    (288, 84)
+    >>> [str(s) for s in run.sample_ids[run.members(0)]][:2]
+    ['SW1-A1', 'SW1-B1']
     """
 
     sample_ids: np.ndarray
@@ -359,5 +369,18 @@ def read_run(layout, readouts=None, samples=None, *, prevalence: float = PREVALE
     ------
     InputError
         A bad file (naming file, line and column) or a bad ``prevalence``.
+
+    References
+    ----------
+    The file formats: RFC 4180 (comma-separated values), with ``;`` or tab delimiters and
+    ``.xlsx`` sheets accepted as well.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> run.n_samples, run.n_pools, run.n_readouts
+    (288, 84, 84)
     """
     return Run.read(layout, readouts, samples, prevalence=prevalence, result_words=result_words)

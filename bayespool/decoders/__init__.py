@@ -294,12 +294,65 @@ def decode(run: Run, assay, *, method: str = "auto",
     (:mod:`bayespool.decisions`). ``expectations`` adds what the batch can expect of its calls
     (``Posterior.batch``), ``model_check`` the posterior predictive check of the readouts
     (``Posterior.model_check``, :mod:`bayespool.modelcheck`).
+
+    Parameters
+    ----------
+    run : Run
+        Layout, readouts and priors (:func:`bayespool.read_run`).
+    assay : Assay
+        Specificity and Se(k, d) (:func:`bayespool.read_assay`).
+    method : {"auto", "exact", "bp", "gibbs"}
+        ``auto``: exact enumeration of small groups of linked specimens (at most ``exact_limit``),
+        belief propagation on large ones, the Gibbs sampler where propagation is loopy.
+    negative_below, positive_above : float, optional
+        Call thresholds on the probability.
+    seed : int or numpy.random.Generator, optional
+        Random seed of the sampler (reproducible results).
+    damping, tolerance, max_sweeps : float, float, int
+        Belief propagation: damping in [0, 1), convergence tolerance on message log-odds, sweep cap.
+    gibbs_options : dict, optional
+        Options of the Gibbs sampler (``chains``, ``max_sweeps``, ``prevalence_prior``, ...).
+    target_sensitivity, max_false_discovery : float, optional
+        Batch targets for the calls.
+
+    Returns
+    -------
+    Posterior
+        Probabilities and calls per specimen (``to_frame()`` indexed by sample), diagnostics.
+
+    Raises
+    ------
+    InputError
+        A bad option (naming the parameter) or a run the assay cannot decode.
+    ImpossibleEvidenceError
+        Readouts that have probability zero under the assay (e.g. a positive pool of specimens all
+        ruled out by a perfectly sensitive test).
+
+    References
+    ----------
+    Exact enumeration of the posterior of linked specimens; loopy belief propagation:
+    Sejdinovic & Johnson (2010), Allerton; Gibbs sampling with latent statuses: Knill, Schliep &
+    Torney (1996), J. Comput. Biol. 3(3); McMahan, Tebbs, Hanson & Bilder (2017), Biometrics
+    73(4); batch expectations: Müller, Parmigiani, Robert & Rousseau (2004), JASA 99; model check:
+    Gelman, Meng & Stern (1996), Statistica Sinica 6.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> posterior = bayespool.decode(run, bayespool.read_assay("datasets/demo/assay.toml"))
+    >>> posterior.counts()
+    {'positive': 4, 'negative': 279, 'inconclusive': 5, 'untested': 0}
+    >>> posterior.to_frame().loc["SW1-A1", "call"]
+    'negative'
     """
     from ..ct_evidence import ct_notes
     rule = DecisionRule(negative_below, positive_above, target_sensitivity, max_false_discovery)
     post = _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max_sweeps,
                    progress, gibbs_options, expectations, model_check, exact_memo)
     post.warnings.extend(ct_notes(run, assay))
+    post.n_pools, post.n_readouts = run.n_pools, run.n_readouts
     return post
 
 
@@ -372,7 +425,7 @@ def _judge(run, assay, post: Posterior, rule, lik, comps, seed, expectations: bo
         post.warnings.extend(batch_warnings(post.batch, rule))
     if model_check:
         from ..modelcheck import check_model
-        check = check_model(run, assay, post, seed=seed)
+        check = check_model(run, assay, seed=seed)
         post.model_check = check.summary()
         post.warnings.extend(check.warnings)
     return post

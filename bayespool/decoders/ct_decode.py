@@ -58,7 +58,7 @@ def ct_choice(run, comps, method: str, choice):
             from ..errors import InputError
             raise InputError(f"a group of {int(sizes[big].max())} specimens linked through shared "
                              f"pools is above the exact Ct decoder's limit of {CT_EXACT_LIMIT}; "
-                             "use --method auto or bp")
+                             "use `method` auto or bp")
     if method == "gibbs":
         choice.method[:] = "gibbs"
     if method == "auto":

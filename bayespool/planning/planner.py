@@ -100,6 +100,49 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     tests while they leave specimens inconclusive. ``exact_memo``: an
     :class:`~bayespool.decoders.exact.ExactMemo` kept across rounds (the closed loop), so components
     drawn before are not enumerated again (the same draws).
+
+    Parameters
+    ----------
+    run : Run
+        The run so far; an empty layout with a samples file plans a first stage.
+    assay : Assay
+        Specificity and Se(k, d).
+    posterior : Posterior, optional
+        The run's decoded posterior.
+    tests : int
+        At most this many pools (one readout each).
+    max_pool_size : int
+        At most this many specimens per pool.
+    seed : int or numpy.random.Generator, optional
+        Random seed of the posterior draws (reproducible plans).
+    n_draws : int
+        Joint posterior draws the information is estimated over.
+
+    Returns
+    -------
+    Plan
+        The planned pools (``to_frame()``: the layout of the next tests, one row per membership).
+
+    Raises
+    ------
+    InputError
+        A bad option (naming the parameter), or an assay that covers no allowed pool size.
+
+    References
+    ----------
+    Expected information gain estimated on joint posterior draws, chosen greedily (Bayesian
+    sequential experimental design; for pooled tests e.g. Cuturi, Teboul & Vert (2020),
+    arXiv:2004.12508).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> assay = bayespool.read_assay("datasets/demo/assay.toml")
+    >>> nxt = bayespool.plan(run, assay, tests=4, seed=1)
+    >>> nxt.n_tests, list(nxt.to_frame().columns[:2])
+    (4, ['pool', 'sample'])
     """
     tests = check_count(tests, "tests", 1)
     max_pool_size = check_count(max_pool_size, "max_pool_size", 1)
@@ -129,12 +172,13 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
                                             rule=rule)
     prob = np.asarray(posterior.probability, dtype=float)
     undecided = np.union1d(posterior.undecided(), np.flatnonzero(untested(run)))
+    calls = posterior.counts()
     notes: list = []
     kmax = max(max_pool_size, int(run.pool_size.max()) if run.n_pools else 1)
     qtab = readout_table(assay, kmax)
     allowed = ~np.isnan(qtab[:, 0])
     if not undecided.size:
-        return _empty(run, True, 0, "decided", notes)
+        return _empty(run, True, 0, "decided", notes, calls)
     if run.n_samples and not allowed[1:max_pool_size + 1].any():
         raise InputError(f"the assay covers no pool size up to {max_pool_size}",
                          run.sources.get("assay"))
@@ -156,7 +200,7 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     if not len(batch.chosen):
         notes.append("no candidate test is expected to tell anything within the limits "
                      "(material left, pool size, linked group size)")
-        return _empty(run, False, len(undecided), batch.stop, notes)
+        return _empty(run, False, len(undecided), batch.stop, notes, calls)
     chosen = batch.chosen
     ptr = np.zeros(len(chosen) + 1, dtype=np.int64)
     np.cumsum(cands.sizes[chosen], out=ptr[1:])
@@ -168,12 +212,12 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
                                          dtype=object),
                 ptr, members, cands.kind[chosen], cands.source[chosen],
                 batch.positive_probability, batch.gain, batch.total_information,
-                len(undecided), False, run.pool_ids, batch.stop, xt.shape[1], notes)
+                len(undecided), False, run.pool_ids, batch.stop, xt.shape[1], notes, calls)
 
 
-def _empty(run, decided: bool, undecided: int, stop: str, notes: list) -> Plan:
+def _empty(run, decided: bool, undecided: int, stop: str, notes: list, calls: dict) -> Plan:
     z = np.zeros(0)
     return Plan(run.sample_ids, np.zeros(0, dtype=object), np.zeros(1, dtype=np.int64),
                 np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int8),
                 np.zeros(0, dtype=np.int64), z, z, 0.0, undecided, decided, run.pool_ids, stop,
-                0, notes)
+                0, notes, calls)

@@ -6,14 +6,15 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
+from ..result_protocol import Result, membership_index
 from ..run import Run
 from .candidates import KINDS
 
 COLUMNS = ["pool", "sample", "kind", "positive_probability", "information_bits", "follows_pool"]
 
 
-@dataclass(eq=False)
-class Plan:
+@dataclass(eq=False, repr=False)
+class Plan(Result):
     """The next batch of pools for a run.
 
     ``pool_ptr``/``pool_members``: members (specimen indices of the run) of planned pool j are
@@ -21,7 +22,25 @@ class Plan:
     information in bits given the pools planned before it; ``total_information`` the joint
     information of the whole batch. ``kind`` is one of retest, pool, split, replicate;
     ``follows`` the read pool a split or replicate follows up (or -1). ``decided`` is True when
-    every specimen was already decided, so nothing was planned.
+    every specimen was already decided, so nothing was planned. ``calls`` counts the calls of
+    the posterior the plan started from (positive, negative, inconclusive, untested).
+
+    ``to_frame()`` is the layout of the planned pools, one row per membership (index
+    ``membership``), in the columns of :data:`COLUMNS`.
+
+    References
+    ----------
+    Expected information gain from joint posterior draws (Cuturi, Teboul & Vert (2020),
+    arXiv:2004.12508).
+
+    Examples
+    --------
+    >>> from bayespool import decode, plan, read_assay, read_run
+    >>> files = [f"datasets/demo/{name}.csv" for name in ("layout", "readouts", "samples")]
+    >>> run, assay = read_run(*files), read_assay("datasets/demo/assay.toml")
+    >>> result = plan(run, assay, posterior=decode(run, assay), tests=3, seed=2)
+    >>> result.summary()["tests"], result.to_frame().index.name
+    (3, 'membership')
     """
 
     sample_ids: np.ndarray
@@ -39,6 +58,7 @@ class Plan:
     stop: str = "full"
     n_draws: int = 0
     notes: list = field(default_factory=list)
+    calls: dict = field(default_factory=dict)
 
     @property
     def n_tests(self) -> int:
@@ -61,7 +81,7 @@ class Plan:
             "pool": self.pool_ids[owner], "sample": self.sample_ids[self.pool_members],
             "kind": kinds[owner], "positive_probability": self.positive_probability[owner],
             "information_bits": self.information[owner], "follows_pool": follows[owner]},
-            columns=COLUMNS)
+            columns=COLUMNS, index=membership_index(len(owner)))
 
     def summary(self) -> dict:
         kinds = {k: int(np.sum(self.kind == i)) for i, k in enumerate(KINDS)}
@@ -70,6 +90,20 @@ class Plan:
                 "information_bits": self.total_information,
                 "kinds": {k: v for k, v in kinds.items() if v}, "stop": self.stop,
                 "draws": self.n_draws, "notes": list(self.notes)}
+
+    def __str__(self) -> str:
+        n = len(self.sample_ids)
+        if self.decided:
+            return f"every sample is decided ({n} samples): no test to plan"
+        c = self.calls
+        head = (f"{n} samples: {c.get('positive', 0)} positive, {c.get('negative', 0)} negative, "
+                f"{c.get('inconclusive', 0)} undecided\n") if c else ""
+        return (head + f"planned {self.n_tests} pools ({len(self.pool_members)} memberships), "
+                f"expected information {self.total_information:.2f} bits")
+
+    def _brief(self) -> str:
+        return (f"{self.n_tests} pools, {len(self.pool_members)} memberships, "
+                f"{self.total_information:.2f} bits, stop={self.stop!r}")
 
     def extend(self, run: Run, positive, ct=None) -> Run:
         """A new run: ``run`` with the planned pools added and read once each (``positive``: bool

@@ -12,6 +12,7 @@ import pandas as pd
 from . import formatting as fmt
 from .escape import attr, text
 from .legend import legend
+from ..result_protocol import file_frame
 from .markup import el, section
 from .palette import styles
 from .plate import n_placed, place, plate_map
@@ -36,7 +37,7 @@ def pool_ids_column(run, n: int) -> np.ndarray:
 def calls_frame(posterior, run=None) -> pd.DataFrame:
     """The posterior table plus an input-order column, each specimen's pool IDs and, when known,
     plate and well."""
-    frame = posterior.to_frame()
+    frame = file_frame(posterior.to_frame())
     frame.insert(0, "order", np.arange(1, len(frame) + 1))
     if run is not None and run.n_samples == len(frame):
         at = list(frame.columns).index("pools") + 1 if "pools" in frame.columns else len(frame.columns)
