@@ -13,30 +13,12 @@ from types import MappingProxyType
 import numpy as np
 import pandas as pd
 
+from .csr import _COUNTING_SORT_FROM, CSR, CSRPart
 from .defaults import PREVALENCE
 from .io import CodedTable, FrameTable, Table, read_id_table, read_table
 from .results import parse_results, skipped_note
 from .validation import check_open_probability
 from .samplesfile import check_samples
-
-_COUNTING_SORT_FROM = 1 << 16  # pairs; below this a NumPy sort is as fast and needs no numba
-
-
-def csr(rows: np.ndarray, cols: np.ndarray, n_rows: int):
-    """CSR (ptr, indices) of the pairs (rows[i], cols[i]), stable in input order within a row.
-
-    Large inputs take an O(n) counting sort (numba) instead of an O(n log n) stable argsort.
-    """
-    ptr = np.zeros(n_rows + 1, dtype=np.int64)
-    np.cumsum(np.bincount(rows, minlength=n_rows), out=ptr[1:])
-    if len(rows) < _COUNTING_SORT_FROM:
-        order = np.argsort(rows, kind="stable")
-        return ptr, cols[order].astype(np.int32, copy=False)
-    from .incidence import scatter_rows
-    out = np.empty(len(rows), dtype=np.int32)
-    scatter_rows(np.asarray(rows), np.asarray(cols), ptr, out)
-    return ptr, out
-
 
 def _first_repeated_pair(rows, cols, n_rows: int, n_cols: int) -> int:
     """Row of the first (pool, sample) pair that repeats an earlier one, or -1."""
@@ -51,8 +33,12 @@ def _first_repeated_pair(rows, cols, n_rows: int, n_cols: int) -> int:
 
 
 class PoolIncidence:
-    """Sizes of a set of pools over specimens held as ``sample_ids``, ``pool_ids`` and CSR
-    ``pool_ptr``/``pool_members``; shared by a run and a design."""
+    """Pools over specimens: ``sample_ids``, ``pool_ids`` and ``by_pool``, the :class:`CSR` of each
+    pool's members (``pool_ptr``/``pool_members`` are its arrays); shared by a run, a design and a
+    plan."""
+
+    pool_ptr = CSRPart("by_pool", "ptr")
+    pool_members = CSRPart("by_pool", "indices")
 
     @property
     def n_samples(self) -> int:
@@ -66,20 +52,18 @@ class PoolIncidence:
     def n_memberships(self) -> int:
         return len(self.pool_members)
 
-    @property
-    def pool_size(self) -> np.ndarray:
-        return np.diff(self.pool_ptr).astype(np.int64)
+    pool_size = CSRPart("by_pool", "sizes")  # members per pool (int64)
 
     def members(self, t: int) -> np.ndarray:
-        return self.pool_members[self.pool_ptr[t]:self.pool_ptr[t + 1]]
+        return self.by_pool.row(t)
 
 
 @dataclass(eq=False, frozen=True)
 class Run(PoolIncidence):
     """Specimens, pools and readouts of one batch; immutable once built.
 
-    ``pool_ptr``/``pool_members``: members of pool t are ``pool_members[pool_ptr[t]:pool_ptr[t+1]]``.
-    ``sample_ptr``/``sample_pools``: pools of sample i, likewise. ``n_positive``/``n_negative``:
+    ``by_pool``: members of each pool (:class:`CSR`; ``pool_ptr``/``pool_members`` are its arrays).
+    ``by_sample``: pools of each sample (``sample_ptr``/``sample_pools``). ``n_positive``/``n_negative``:
     readouts of each pool (replicates folded). ``prior``: P(x_i = 1) before the readouts.
     ``sources`` (read-only mapping of input role -> file) and ``notes`` (tuple) describe where the
     run came from. A changed run is a new one: :meth:`with_prior`, :meth:`with_readouts`,
@@ -99,10 +83,8 @@ class Run(PoolIncidence):
     sample_ids: np.ndarray
     pool_ids: np.ndarray
     prior: np.ndarray
-    pool_ptr: np.ndarray
-    pool_members: np.ndarray
-    sample_ptr: np.ndarray
-    sample_pools: np.ndarray
+    by_pool: CSR
+    by_sample: CSR
     n_positive: np.ndarray
     n_negative: np.ndarray
     samples: pd.DataFrame | None = None  # the samples file as read (plate, well, ...), if any
@@ -129,8 +111,11 @@ class Run(PoolIncidence):
         """Whether each pool has at least one readout (a pool never read adds no information)."""
         return self.pool_reads > 0
 
+    sample_ptr = CSRPart("by_sample", "ptr")
+    sample_pools = CSRPart("by_sample", "indices")
+
     def pools_of(self, i: int) -> np.ndarray:
-        return self.sample_pools[self.sample_ptr[i]:self.sample_ptr[i + 1]]
+        return self.by_sample.row(i)
 
     def log_likelihood(self, assay):
         """Per-pool log L_t[d] as (ptr, values); see :meth:`bayespool.assay.Assay.log_likelihood`."""
@@ -150,8 +135,8 @@ class Run(PoolIncidence):
         """Build from integer codes (membership pairs; readouts as pool index and 0/1 result)."""
         pm = np.asarray(pool_of_membership, dtype=np.int64)
         sm = np.asarray(sample_of_membership, dtype=np.int64)
-        pool_ptr, pool_members = csr(pm, sm, n_pools)
-        sample_ptr, sample_pools = csr(sm, pm, n_samples)
+        by_pool = CSR.from_pairs(pm, sm, n_pools)
+        by_sample = CSR.from_pairs(sm, pm, n_samples)
         npos = np.zeros(n_pools, dtype=np.int32)
         nneg = np.zeros(n_pools, dtype=np.int32)
         if readout_pool is not None:
@@ -165,7 +150,7 @@ class Run(PoolIncidence):
         if pool_ids is None:
             pool_ids = np.array([f"P{t}" for t in range(n_pools)], dtype=object)
         return cls(np.asarray(sample_ids, dtype=object), np.asarray(pool_ids, dtype=object), prior,
-                   pool_ptr, pool_members, sample_ptr, sample_pools, npos, nneg, samples,
+                   by_pool, by_sample, npos, nneg, samples,
                    readout_ct, sources or {}, notes)
 
     @classmethod

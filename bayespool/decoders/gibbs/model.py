@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ...run import csr
+from ...csr import csr
 
 PENALTY = 1.0e6  # log-weight of one broken hard constraint
 
