@@ -290,7 +290,7 @@ def _add_assay(sub, shared):
 
 def _run_assay(args):
     from .assay import Assay
-    from .assay_curve import assay_curve
+    from .assay_view import assay_curve
     plot = args.plot
     if plot:
         _check_outputs(args, plot=plot)

@@ -18,7 +18,7 @@ ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "datasets" / "demo"
 
 FUNCTIONS = ("read_run", "read_assay", "decode", "plan", "calibrate", "make_design",
-             "optimal_dorfman", "simulate", "sweep", "write_report")
+             "optimal_dorfman", "simulate", "sweep", "write_report", "assay_curve")
 
 
 def _import_every_submodule():
@@ -70,7 +70,8 @@ def test_options_are_keyword_only(name):
                "decode": ["run", "assay"], "plan": ["run", "assay"],
                "calibrate": ["validation", "run"], "make_design": ["scheme", "samples"],
                "optimal_dorfman": ["prevalence", "assay"], "simulate": ["scheme", "samples"],
-               "sweep": ["scheme", "samples"], "write_report": ["path"]}
+               "sweep": ["scheme", "samples"], "write_report": ["path"],
+               "assay_curve": ["assay"]}
     assert positional == allowed[name]
 
 

@@ -30,7 +30,7 @@ def test_numpydoc_sections(name):
     assert set(need) <= have, f"{name} lacks {sorted(set(need) - have)}"
 
 
-MORE = ["assay_curve.assay_curve", "simulation.study.check_study", "simulation.study.run_study"]
+MORE = ["simulation.study.check_study", "simulation.study.run_study"]
 
 
 @pytest.mark.parametrize("name", NAMES + MORE)

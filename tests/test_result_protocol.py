@@ -93,7 +93,7 @@ def _regression(demo):
 
 
 def _assay_curve(demo):
-    from bayespool.assay_curve import assay_curve
+    from bayespool import assay_curve
     return assay_curve(demo[1], pool_sizes=[1, 4, 16], source="assay.toml")
 
 
@@ -172,7 +172,7 @@ def test_str_is_what_the_command_line_prints(demo, cli, tmp_path):
                     DEMO / "readouts.csv", "--samples", DEMO / "samples.csv", "--assay",
                     DEMO / "assay.toml", "--seed", "1", "--out", tmp_path / "post.csv")
     assert out == str(post) + f"\nwrote {tmp_path / 'post.csv'}\n"
-    from bayespool.assay_curve import assay_curve
+    from bayespool import assay_curve
     curve = assay_curve(assay, pool_sizes=[1, 4, 16], source=str(DEMO / "assay.toml"))
     out = _cli_text(cli, "assay", DEMO / "assay.toml", "--pool-sizes", "1,4,16")
     assert out == str(curve) + "\n"
@@ -216,3 +216,15 @@ def test_write_report_takes_the_plan_and_renders_what_its_table_renders(demo, tm
     with pytest.raises(InputError) as info:
         bayespool.write_report(tmp_path / "frame.html", posterior=post, plan=nxt.to_frame())
     assert "plan" in info.value.parameters and not (tmp_path / "frame.html").exists()
+
+
+def test_one_specimen_shows_the_call_of_the_table_under_batch_targets(demo):
+    # the targets move calls away from the two thresholds (Müller et al. 2004 expected FDR/FNR
+    # rule): the O(1) accessor must show the same call as the table, specimen by specimen
+    run, assay = demo
+    post = bayespool.decode(run, assay, target_sensitivity=0.99, max_false_discovery=0.2)
+    frame = post.to_frame()
+    calls = {sid: post[sid]["call"] for sid in frame.index}
+    assert calls == frame["call"].to_dict()
+    plain = _posterior(demo).to_frame()["call"]
+    assert (frame["call"] != plain).any()  # the rule in force matters here

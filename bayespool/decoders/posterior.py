@@ -156,11 +156,12 @@ class Posterior(Result):
 
     def __getitem__(self, sample_id) -> dict:
         """One specimen's answer: ``posterior["S0012"]`` -> ``{"sample", "probability", "call",
-        "prior"}`` (plus ``mcse`` from a sampler), found in O(1)."""
+        "prior"}`` (plus ``mcse`` from a sampler), found in O(1); the call is the one
+        ``to_frame()`` shows (the rule in force, batch targets included; ``untested`` for a
+        specimen in no read pool)."""
         i = self.index_of(sample_id)
         row = {"sample": str(self.sample_ids[i]), "probability": float(self.probability[i]),
-               "call": CALLS[int(call_codes(self.probability[i:i + 1], self.negative_below,
-                                            self.positive_above)[0])],
+               "call": CALLS[int(self.call_codes()[i])],
                "prior": float(self.prior[i])}
         if self.mcse is not None:
             row["mcse"] = float(self.mcse[i])

@@ -19,6 +19,14 @@ class AssayCurve(Result):
     ``to_frame()`` holds Se(k, d) indexed by (``pool_size``, ``positives``); ``summary()`` is
     ``{"specificity", "sensitivity": [{"pool_size", "positives", "value"}, ...]}``; ``source`` is
     the file the assay was read from (shown first in ``str()``).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> curve = bayespool.assay_curve(bayespool.read_assay("datasets/demo/assay.toml"),
+    ...                               pool_sizes=[1, 8])
+    >>> curve.to_frame().index.names, len(curve.to_frame())
+    (FrozenList(['pool_size', 'positives']), 9)
     """
 
     assay: Assay
@@ -78,9 +86,15 @@ def assay_curve(assay: Assay, *, pool_sizes=None, source: str | None = None) -> 
     InputError
         A pool size that is not a whole number >= 1 or that a table assay does not cover.
 
+    References
+    ----------
+    Se(k, d) of the dilution model: Hwang, F. K. (1976), Group testing with a dilution effect,
+    Biometrika 63(3); of a ``[ct]`` assay, integrated over the individual Cts of the positives (a
+    1:k dilution raises Ct by about log2 k cycles, common practice).
+
     Examples
     --------
-    >>> from bayespool import Assay, ConstantSensitivity
+    >>> from bayespool import Assay, ConstantSensitivity, assay_curve
     >>> curve = assay_curve(Assay(0.99, ConstantSensitivity(0.95)), pool_sizes=[1, 4])
     >>> float(curve.to_frame().loc[(4, 2), "value"])
     0.95
