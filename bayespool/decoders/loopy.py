@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-SAMPLER_LIMIT = 500  # specimens of loopy BP groups that auto re-decodes by the sampler
+from ..defaults import LOOPY_SAMPLER_LIMIT as SAMPLER_LIMIT
 CHECK_Z = 5.0        # a difference beyond this many Monte Carlo errors is not sampling noise
 
 
