@@ -40,9 +40,10 @@ KINDS = ("positive_readouts", "positive_pool_negative_members", "negative_pool_p
 
 @njit(cache=True)
 def _statistics(r, r_design, reads, pool_ptr, pool_members, cls, kind_ok, single_of, ind_reads,
-                out):
+                alone, out):
     """out[c, 0..2] += the three statistics of pool-size class c: positive readouts ``r``; the
-    discordances of single readouts ``r`` with the pooled readouts ``r_design``."""
+    discordances of single readouts ``r`` with the pooled readouts ``r_design``. ``alone[t]``:
+    members of pool t read alone (a pool with none cannot be discordant and is skipped)."""
     n = len(ind_reads)
     ind_pos = np.zeros(n, dtype=np.int64)
     for t in range(len(reads)):
@@ -53,9 +54,11 @@ def _statistics(r, r_design, reads, pool_ptr, pool_members, cls, kind_ok, single
             continue
         c = cls[t]
         out[c, 0] += r[t]
-        if not kind_ok[t]:
+        if not kind_ok[t] or alone[t] == 0:
             continue
         if r_design[t] > 0:
+            if alone[t] < pool_ptr[t + 1] - pool_ptr[t]:
+                continue
             every = True
             for j in range(pool_ptr[t], pool_ptr[t + 1]):
                 i = pool_members[j]
@@ -72,25 +75,53 @@ def _statistics(r, r_design, reads, pool_ptr, pool_members, cls, kind_ok, single
 
 
 @njit(cache=True)
-def _replicates(x_prior, x_given, seed, r_obs, reads, q_ptr, q, pool_ptr, pool_members, cls,
-                kind_ok, single_of, ind_reads, out):
+def _prior_counts(prior, rate, sample_ptr, sample_pools, d):
+    """d[t] = positive members of pool t in one draw of the statuses from the priors.
+
+    Candidates come at geometric gaps with probability ``rate`` (the largest prior) and are kept
+    with probability prior_i / rate (thinning): the same independent Bernoulli(prior_i) statuses
+    in time proportional to the expected number of positives, not to the number of specimens."""
+    d[:] = 0
+    n = len(prior)
+    i = -1
+    while True:
+        i += np.random.geometric(rate) if rate < 1.0 else 1
+        if i >= n:
+            break
+        if rate < 1.0 and np.random.random() * rate >= prior[i]:
+            continue
+        for a in range(sample_ptr[i], sample_ptr[i + 1]):
+            d[sample_pools[a]] += 1
+
+
+@njit(cache=True)
+def _replicates(n_draws, prior, sample_ptr, sample_pools, x_given, seed, r_obs, reads, q_ptr, q,
+                pool_ptr, pool_members, cls, kind_ok, single_of, ind_reads, alone, out):
     """out[s]: statistics of replicate s. Pooled readouts (pools of several) are drawn from
-    ``x_prior[s]``; single readouts from ``x_given[s]`` (statuses given the pooled readouts),
-    and their discordances are counted against the observed pooled readouts ``r_obs``."""
+    statuses drawn from the priors; single readouts from ``x_given[s]`` (statuses given the pooled
+    readouts), and their discordances are counted against the observed pooled readouts
+    ``r_obs``."""
     np.random.seed(seed)
     r = np.zeros(len(reads), dtype=np.int64)
-    for s in range(x_prior.shape[0]):
+    d_prior = np.zeros(len(reads), dtype=np.int64)
+    rate = prior.max() if len(prior) else 0.0
+    for s in range(n_draws):
+        _prior_counts(prior, rate, sample_ptr, sample_pools, d_prior)
         for t in range(len(reads)):
             r[t] = 0
             if reads[t] == 0:
                 continue
-            x = x_given if single_of[t] >= 0 else x_prior
-            d = 0
-            for j in range(pool_ptr[t], pool_ptr[t + 1]):
-                d += x[s, pool_members[j]]
-            r[t] = np.random.binomial(reads[t], q[q_ptr[t] + d])
+            if single_of[t] >= 0:
+                d = x_given[s, single_of[t]]
+            else:
+                d = d_prior[t]
+            qt = q[q_ptr[t] + d]
+            hits = 0
+            for _ in range(reads[t]):  # replicates of one pool are few: Bernoulli draws
+                hits += np.random.random() < qt
+            r[t] = hits
         _statistics(r, r_obs, reads, pool_ptr, pool_members, cls, kind_ok, single_of, ind_reads,
-                    out[s])
+                    alone, out[s])
 
 
 def _mid_p_upper(rep: np.ndarray, obs: np.ndarray) -> np.ndarray:
@@ -167,36 +198,43 @@ def _n_draws(n_samples: int, draws: int | None) -> int:
     return int(max(100, min(DEFAULT_DRAWS, MEMORY // max(n_samples, 1))))
 
 
-def _given_pooled(run, assay, single, n_draws, rng, notes, posterior=None) -> np.ndarray:
+def _given_pooled(run, assay, single, alone_reads, n_draws, rng, notes) -> np.ndarray:
     """Joint draws of the statuses given the readouts of pools of several specimens only (the
-    single readouts left out), draws x specimens. ``posterior`` is reused when nothing is left
-    out."""
+    single readouts left out), draws x specimens.
+
+    Only the specimens read alone are used. The posterior factorises over linked groups, so the
+    groups without such a specimen are cut loose (their pooled readouts dropped) before decoding:
+    the draws of the specimens read alone are the same in distribution, at the cost of the groups
+    that hold them."""
     from dataclasses import replace
 
     from .decoders import decode
+    from .decoders.graph import components
     from .planning.draws import posterior_draws
-    if posterior is not None and not single.any():
-        return np.ascontiguousarray(posterior_draws(run, assay, posterior, n_draws, rng, notes,
-                                                    every_group=True))
-    pooled = replace(run, n_positive=np.where(single, 0, run.n_positive),
-                     n_negative=np.where(single, 0, run.n_negative), notes=[])
+    pos = np.where(single, 0, run.n_positive)
+    neg = np.where(single, 0, run.n_negative)
+    label = components(replace(run, n_positive=pos, n_negative=neg, notes=[])).sample_label
+    wanted = np.zeros(label.max() + 1 if len(label) else 0, dtype=bool)
+    wanted[label[alone_reads > 0]] = True
+    size = run.pool_size
+    first = run.pool_members[run.pool_ptr[:-1][size > 0]]
+    keep = np.zeros(run.n_pools, dtype=bool)
+    keep[size > 0] = wanted[label[first]]
+    pooled = replace(run, n_positive=np.where(keep, pos, 0), n_negative=np.where(keep, neg, 0),
+                     notes=[])
     post = decode(pooled, assay, method="auto", seed=int(rng.integers(2**31)),
                   expectations=False, model_check=False)
     x = posterior_draws(pooled, assay, post, n_draws, rng, notes, every_group=True)
     return np.ascontiguousarray(x)
 
 
-def check_model(run, assay, posterior=None, *, draws: int | None = None,
-                seed=None) -> ModelCheck:
+def check_model(run, assay, *, draws: int | None = None, seed=None) -> ModelCheck:
     """Predictive check of ``run``'s readouts under ``assay``.
 
     Parameters
     ----------
     run, assay
         The run and the assay model to check.
-    posterior
-        The run's posterior, reused when the run has no single readouts to predict (otherwise the
-        check decodes the pooled readouts alone).
     draws
         Replicated data sets (default 1000, fewer for runs above 100,000 specimens so that the
         status draws stay within 100 MB).
@@ -208,7 +246,7 @@ def check_model(run, assay, posterior=None, *, draws: int | None = None,
     ModelCheck
     """
     rng = np.random.default_rng(seed)
-    reads = (run.n_positive + run.n_negative).astype(np.int64)
+    reads = run.pool_reads.astype(np.int64)
     read = reads > 0
     size = run.pool_size.astype(np.int64)
     if not read.any():
@@ -230,23 +268,26 @@ def check_model(run, assay, posterior=None, *, draws: int | None = None,
     rows = read[owner]
     q[rows] = assay.positive_probability(size[owner][rows], d[rows])
     r_obs = run.n_positive.astype(np.int64)
+    member_pool = np.repeat(np.arange(run.n_pools), size)
+    alone = np.bincount(member_pool, weights=ind_reads[run.pool_members] > 0,
+                        minlength=run.n_pools).astype(np.int64)  # members of each pool read alone
     obs = np.zeros((len(sizes), 3), dtype=np.int64)
     _statistics(r_obs, r_obs, reads, run.pool_ptr, run.pool_members, cls, kind_ok, single_of,
-                ind_reads, obs)
+                ind_reads, alone, obs)
     n_draws = _n_draws(run.n_samples, draws)
     notes: list = []
-    x_prior = (rng.random((n_draws, run.n_samples)) < run.prior[None, :]).astype(np.uint8)
-    x_given = _given_pooled(run, assay, single, n_draws, rng, notes, posterior)
+    if single.any():
+        x_given = _given_pooled(run, assay, single, ind_reads, n_draws, rng, notes)
+    else:  # nothing is read alone: no draws given the pooled readouts are needed
+        x_given = np.zeros((n_draws, 0), dtype=np.uint8)
     rep = np.zeros((n_draws, len(sizes), 3), dtype=np.int64)
-    _replicates(x_prior, x_given, int(rng.integers(2**31)), r_obs, reads, q_ptr, q,
-                run.pool_ptr, run.pool_members, cls, kind_ok, single_of, ind_reads, rep)
+    _replicates(n_draws, np.ascontiguousarray(run.prior, dtype=float), run.sample_ptr,
+                run.sample_pools, x_given, int(rng.integers(2**31)), r_obs, reads, q_ptr, q,
+                run.pool_ptr, run.pool_members, cls, kind_ok, single_of, ind_reads, alone, rep)
     # the checks that can vary: a discordance needs pools of several members with single tests
-    has_single = np.zeros(len(sizes), dtype=bool)
-    multi_all = np.zeros(len(sizes), dtype=bool)
-    for t in np.flatnonzero(kind_ok):
-        m = run.pool_members[run.pool_ptr[t]:run.pool_ptr[t + 1]]
-        has_single[cls[t]] |= bool((ind_reads[m] > 0).any())
-        multi_all[cls[t]] |= bool((ind_reads[m] > 0).all())
+    has_single = np.bincount(cls[kind_ok], weights=alone[kind_ok] > 0, minlength=len(sizes)) > 0
+    multi_all = np.bincount(cls[kind_ok], weights=alone[kind_ok] == size[kind_ok],
+                            minlength=len(sizes)) > 0
     cols, meta = [], []
     for c, k in enumerate(sizes):
         cols.append((c, 0))

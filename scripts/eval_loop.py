@@ -6,7 +6,7 @@ size (Kim, Hudgens, Dreyfuss, Westreich & Pilcher 2007, Biometrics 63(4), from m
 references.md), and tests used with the counting bound n * H(p) (Aldridge, Johnson & Scarlett 2019).
 
     python3 scripts/eval_loop.py --samples 600 --prevalence 0.02 --runs 100
-    python3 scripts/eval_loop.py --table --samples 300 --runs 10 \
+    python3 scripts/eval_loop.py --table --samples 600 --runs 25 --max-pool-size 16 \
         --target-sensitivity 0.95 --max-false-discovery 0.05     # README's table
 """
 from __future__ import annotations
@@ -64,7 +64,8 @@ def best_dorfman_assay(p, assay, kmax=64):
                key=lambda r: r["tests"])
 
 
-def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05), array_runs=2000, **targets):
+def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05), array_runs=2000, kmax=16,
+          **targets):
     """Markdown rows: individual and Dorfman (closed forms), the array (simulated, cohorts of 960)
     and the Bayesian loop with the batch targets (simulated)."""
     from bayespool.simulation import simulate
@@ -77,11 +78,12 @@ def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05), array_runs=2000,
             se1 = float(assay.positive_probability(np.array([1]), np.array([1]))[0])
             rows.append(f"| {name} | {p:g} | individual | 1 | {se1:.4f} | "
                         f"{assay.specificity:.4f} |")
-            dorf = best_dorfman_assay(p, assay)
+            dorf = best_dorfman_assay(p, assay, kmax)
             rows.append(f"| {name} | {p:g} | Dorfman k={dorf['k']} (closed form) | "
                         f"{dorf['tests']:.4f} | {dorf['sensitivity']:.4f} | "
                         f"{dorf['specificity']:.4f} |")
-            arr = simulate("array", 960, p, assay, runs=array_runs, seed=seed).to_dict()
+            arr = simulate("array", 960, prevalence=p, assay=assay, runs=array_runs,
+                           seed=seed).summary()
             rows.append(f"| {name} | {p:g} | array 8 x 12 (simulated) | "
                         f"{arr['tests_per_sample']:.4f} | {arr['sensitivity']:.4f} | "
                         f"{arr['specificity']:.5f} |")
@@ -158,6 +160,7 @@ def main(argv=None):
     args = ap.parse_args(argv)
     if args.table:
         print(table(args.samples, args.runs, args.seed, array_runs=args.array_runs,
+                    kmax=args.max_pool_size or 16, max_pool_size=args.max_pool_size,
                     target_sensitivity=args.target_sensitivity,
                     max_false_discovery=args.max_false_discovery))
         return 0

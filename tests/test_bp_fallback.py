@@ -23,7 +23,7 @@ def sampler_module(monkeypatch):
     calls = []
 
     def fallback(run, lik_ptr, loglik, comps, selected, why, seed=None, negative_below=0.01,
-                 positive_above=0.99, options=None):
+                 positive_above=0.99, options=None, start=None):
         calls.append((np.array(selected), why, seed, negative_below, positive_above))
         prob, _, count_ptr, counts = decode_exact(run, lik_ptr, loglik, comps, selected)
         specimens = np.concatenate([comps.samples_of(int(c)) for c in selected])
@@ -72,7 +72,7 @@ def test_no_fallback_for_an_explicit_bp_or_a_converged_run(sampler_module):
 
 def test_without_the_sampler_there_is_no_fallback_and_a_loud_warning(monkeypatch):
     import bayespool.decoders as decode_module
-    monkeypatch.setattr(decode_module.importlib.util, "find_spec", lambda name: None)
+    monkeypatch.setattr(decode_module, "fallback_decoder", lambda method, part: None)
     assay = ASSAYS["constant"]
     run = loopy_run(np.random.default_rng(2), assay, n=16, k=4, prevalence=0.2)
     post = decode(run, assay, method="auto", exact_limit=4, max_sweeps=1)

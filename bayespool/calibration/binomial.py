@@ -62,6 +62,22 @@ def _evaluate(code, u, log_r, entry, detected, misses, trials):
 
 
 @njit(cache=True)
+def _evaluate_rows(code, rows, free, log_r, entry, detected, misses, trials):
+    """Negative log-likelihood and expected information (free parameters) at each row of full
+    parameter vectors: one call for the thousands of points of an importance sample."""
+    n_rows, n_free = rows.shape[0], len(free)
+    values = np.empty(n_rows)
+    infos = np.empty((n_rows, n_free, n_free))
+    for r in range(n_rows):
+        value, _, info = _evaluate(code, rows[r], log_r, entry, detected, misses, trials)
+        values[r] = value
+        for a in range(n_free):
+            for b in range(n_free):
+                infos[r, a, b] = info[free[a], free[b]]
+    return values, infos
+
+
+@njit(cache=True)
 def newton_step(info, grad):
     """info^-1 grad with Jacobi scaling (directions of very different curvature, such as a
     probability near 1 on the logit scale, keep their own step) and a floor on the scaled
@@ -203,6 +219,15 @@ class CellLikelihood:
     def fisher(self, u_free) -> np.ndarray:
         """Expected information sum_j n_j / (Se_j (1 - Se_j)) J_j J_j^T on the free scale."""
         return self._at(u_free)[2].copy()
+
+    def at_rows(self, u_free_rows):
+        """(log-likelihoods, expected informations) at each row of free parameter vectors."""
+        rows = np.repeat(self.space.full(np.zeros(self.space.n_free))[None, :],
+                         len(u_free_rows), axis=0)
+        rows[:, self.free] = u_free_rows
+        values, infos = _evaluate_rows(self.family.code, rows, self.free, self.log_r, self.entry,
+                                       self.detected, self.misses, self.trials)
+        return -values, infos
 
     def local(self, u_free, mask=None, tol: float = 1e-11, decrement_tol: float = 1e-14,
               steps: int = 100):

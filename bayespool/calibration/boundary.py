@@ -115,12 +115,11 @@ def _posterior_draws(fit, centre: np.ndarray, draws: int, seed: int):
     hi = np.array([p.upper for p in fit.space.free_params])
     log_q = -0.5 * (PROPOSAL_DF + n_par) * np.log1p((t ** 2).sum(axis=1) / PROPOSAL_DF)
     log_w = np.full(PROPOSALS, -np.inf)
-    for i, u in enumerate(sims):
-        if np.any(u < lo) or np.any(u > hi):
-            continue
-        sign, logdet = np.linalg.slogdet(fit.objective.fisher(u))
-        if sign > 0:
-            log_w[i] = fit.objective.loglik(u) + 0.5 * logdet - log_q[i]
+    inside = np.flatnonzero(np.all((sims >= lo) & (sims <= hi), axis=1))
+    loglik, info = fit.objective.at_rows(sims[inside])
+    sign, logdet = np.linalg.slogdet(info)
+    ok = sign > 0
+    log_w[inside[ok]] = loglik[ok] + 0.5 * logdet[ok] - log_q[inside[ok]]
     weights = np.exp(log_w - log_w.max())
     weights /= weights.sum()
     ess = 1.0 / np.sum(weights ** 2)

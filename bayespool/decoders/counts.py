@@ -7,7 +7,10 @@ _TINY = 1e-300
 
 
 def _trim(dist: np.ndarray, offset: int, tol: float):
-    keep = np.flatnonzero(dist > tol * dist.max())
+    top = dist.max()
+    if dist[0] > tol * top and dist[-1] > tol * top:  # both ends kept: nothing to cut
+        return dist, offset
+    keep = np.flatnonzero(dist > tol * top)
     lo, hi = keep[0], keep[-1] + 1
     return dist[lo:hi], offset + lo
 

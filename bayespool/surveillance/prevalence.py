@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError
+from ..result_protocol import Result
 from .checks import check_beta_prior, check_level, check_positive
 from .difference import Difference, difference
 from .estimators import (Estimate, bias_corrected, clipped_note, maximum_likelihood,
@@ -50,8 +51,8 @@ class GroupEstimate:
         return " / ".join(str(v) for v in self.group.values()) if self.group else ALL
 
 
-@dataclass(eq=False)
-class PrevalenceEstimates:
+@dataclass(eq=False, repr=False)
+class PrevalenceEstimates(Result):
     """Per-group prevalence estimates from pooled readouts.
 
     ``to_frame()`` is indexed by the grouping columns; estimates there (and in ``summary()``) are
@@ -125,9 +126,9 @@ class PrevalenceEstimates:
         lines.extend(f"note: {n}" for n in self.notes)
         return "\n".join(lines)
 
-    def __repr__(self) -> str:
-        return (f"PrevalenceEstimates({len(self.groups)} group(s), interval={self.interval!r}, "
-                f"level={self.level:g}, per={self.per:g})")
+    def _brief(self) -> str:
+        return (f"{len(self.groups)} group(s), interval={self.interval!r}, "
+                f"level={self.level:g}, per={self.per:g}")
 
 
 def _cell(v: float) -> str:
@@ -194,13 +195,32 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str | None = None
     Returns
     -------
     PrevalenceEstimates
+
+    Raises
+    ------
+    InputError
+        A bad option (naming the parameter) or pools without readouts.
+
+    References
+    ----------
+    Thompson (1962), Biometrics 18; Walter, Hildreth & Beaty (1980), Am. J. Epidemiol. 112;
+    Hepworth (1996), Biometrics 52; Hepworth & Biggerstaff (2017), JABES 22; Tu, Litvak & Pagano
+    (1995), Statistics in Medicine 14.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> pools = bayespool.read_pools("datasets/surveillance/pools.csv")
+    >>> est = bayespool.estimate_prevalence(pools, by=["site"], per=1000)
+    >>> est.to_frame().index.tolist()
+    ['creek', 'meadow']
     """
     data = pools if isinstance(pools, PooledData) else pools_from_frame(pools)
     by = data.check_by(by)
     if interval is None:
         interval = "likelihood" if assay_uncertainty else "skew-score"
     if interval not in METHODS:
-        raise InputError(f"interval must be one of {', '.join(METHODS)}, got {interval!r}")
+        raise InputError(f"`interval` must be one of {', '.join(METHODS)}, got {interval!r}")
     spread = _spread(assay, interval, data.source) if assay_uncertainty else None
     level, per, prior = check_level(level), check_positive(per, "per"), check_beta_prior(prior)
     if not len(data.frame):
@@ -241,13 +261,12 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str | None = None
 def _spread(assay, interval: str, source):
     """The assay's fitted uncertainty, checked for what ``assay_uncertainty`` needs."""
     if assay is None:
-        raise InputError("assay_uncertainty needs an assay written by calibrate (with its "
-                         "[fit.uncertainty] table)", parameters=("assay_uncertainty", "assay"))
+        raise InputError("`assay_uncertainty` needs an `assay` written by calibrate (with its "
+                         "[fit.uncertainty] table)")
     if interval not in INTEGRATED_METHODS:
-        raise InputError(f"interval {interval!r} needs the score of one assay; over the "
+        raise InputError(f"`interval` {interval!r} needs the score of one assay; over the "
                          "assay's uncertainty use "
-                         f"{' or '.join(map(repr, INTEGRATED_METHODS))}",
-                         parameters=("interval",))
+                         f"{' or '.join(map(repr, INTEGRATED_METHODS))}")
     from ..assay_spread import integrate
     return integrate(assay)
 
@@ -257,7 +276,7 @@ def _interval(lik, method, level, estimate, prior, key):
         return interval(lik, method, level, estimate, prior)
     except InputError as exc:
         where = f" (group {' / '.join(map(str, key.values()))})" if key else ""
-        raise InputError(exc.message + where) from None
+        raise InputError(exc.message + where, parameters=exc.parameters) from None
 
 
 def _difference(liks: dict, by: list, compare, level: float, per: float):
@@ -271,9 +290,9 @@ def _difference(liks: dict, by: list, compare, level: float, per: float):
         compare = compare[0].split(",")
     compare = [str(c).strip() for c in compare]
     if len(compare) != 2 or compare[0] == compare[1]:
-        raise InputError(f"compare must name two different groups, got {', '.join(compare)}")
+        raise InputError(f"`compare` must name two different groups, got {', '.join(compare)}")
     for c in compare:
         if c not in liks:
-            raise InputError(f"compare: no group {c!r} (groups: {', '.join(liks)})")
+            raise InputError(f"`compare`: no group {c!r} (groups: {', '.join(liks)})")
     (la, ga), (lb, gb) = liks[compare[0]], liks[compare[1]]
     return difference(la, lb, ga.mle, gb.mle, level=level, names=compare, per=per)
