@@ -408,9 +408,10 @@ def _not_converged(part: DecodedPart, comps: Components, remedy: str | None) -> 
             f"{d.get('tolerance'):g})")
     if remedy:
         return f"{head}; {remedy}"
-    hint = "raise --max-sweeps or --damping (e.g. 0.5)"
+    from ..result_protocol import spell
+    hint = f"raise {spell('max_sweeps')} or {spell('damping')} (e.g. 0.5)"
     if "gibbs" in PART_DECODERS:
-        hint += ", or use --method gibbs"
+        hint += f", or use {spell('method')} gibbs"
     return f"{head}; their probabilities are unreliable: {hint}"
 
 
