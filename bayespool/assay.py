@@ -12,6 +12,7 @@ from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 
 import numpy as np
+from numba import njit
 
 from .errors import InputError
 from .io import read_toml, write_text
@@ -100,9 +101,33 @@ class ConstantSensitivity(Sensitivity):
         return False
 
 
+@njit(cache=True)
+def dilution_point(log_r, se_max, miss_max, log_r50, slope):
+    """The dilution family at one log dilution: ``(Se, 1 - Se, fall, z)``.
+
+    z = slope (log r - log r50); ``fall`` = 1 / (1 + e^-z) is the share of ``se_max`` lost to
+    dilution, so Se = se_max / (1 + (r / r50)^slope) = se_max (1 - fall). ``1 - Se`` is
+    ``miss_max + se_max fall`` (``miss_max`` = 1 - se_max, given apart so that it can be exact), never
+    a subtraction, so log(1 - Se) stays accurate near Se = 1. The one definition of the family: the
+    assay evaluates it and calibration differentiates it (Hwang 1976).
+    """
+    z = slope * (log_r - log_r50)
+    fall, keep = 1.0 / (1.0 + np.exp(-z)), 1.0 / (1.0 + np.exp(z))
+    return se_max * keep, miss_max + se_max * fall, fall, z
+
+
+@njit(cache=True)
+def _dilution_curve(log_r, se_max, log_r50, slope):
+    out = np.empty(len(log_r))
+    for i in range(len(log_r)):
+        out[i] = dilution_point(log_r[i], se_max, 1.0 - se_max, log_r50, slope)[0]
+    return out
+
+
 @dataclass(frozen=True)
 class DilutionSensitivity(Sensitivity):
-    """Log-logistic fall in the dilution factor r = k / d: Se = se_max / (1 + (r / r50) ** slope).
+    """Log-logistic fall in the dilution factor r = k / d: Se = se_max / (1 + (r / r50) ** slope)
+    (:func:`dilution_point`).
 
     ``r50`` is the dilution at which sensitivity is half of ``se_max``.
 
@@ -125,7 +150,10 @@ class DilutionSensitivity(Sensitivity):
 
     def __call__(self, k, d):
         r = np.asarray(k, dtype=float) / np.asarray(d, dtype=float)
-        return self.se_max / (1.0 + (r / self.r50) ** self.slope)
+        log_r = np.log(r)
+        out = _dilution_curve(np.ascontiguousarray(log_r, dtype=float).ravel(),
+                              float(self.se_max), float(np.log(self.r50)), float(self.slope))
+        return out.reshape(log_r.shape)[()]  # a scalar for scalar k and d, as numpy gives
 
     def to_dict(self):
         return {"model": "dilution", "se_max": self.se_max, "r50": self.r50, "slope": self.slope}
@@ -147,7 +175,7 @@ class TableSensitivity(Sensitivity):
     entries: tuple  # sorted tuples (pool_size, positives, value)
     model: str = field(default="table", init=False)
 
-    def _steps(self):
+    def _steps(self):  # pool size -> (counts, values)
         steps: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         for size in sorted({e[0] for e in self.entries}):
             rows = [e for e in self.entries if e[0] == size]
@@ -168,15 +196,9 @@ class TableSensitivity(Sensitivity):
 
     def __call__(self, k, d):
         k, d = np.broadcast_arrays(np.asarray(k, dtype=np.int64), np.asarray(d, dtype=np.int64))
-        out = np.empty(k.shape, dtype=float)
-        steps = self._steps()
         self.check_pool_sizes(k)
-        for size, (counts, values) in steps.items():
-            sel = k == size
-            if sel.any():
-                idx = np.searchsorted(counts, d[sel], side="right") - 1
-                out[sel] = values[np.maximum(idx, 0)]
-        return out
+        values = np.array([e[2] for e in self.entries], dtype=float)
+        return values[table_entry(self.entries, k.ravel(), d.ravel())].reshape(k.shape)
 
     def to_dict(self):
         return {"model": "table", "table": [{"pool_size": int(s), "positives": int(p), "value": v}
@@ -185,6 +207,26 @@ class TableSensitivity(Sensitivity):
     def depends_on_count(self):
         steps = self._steps()
         return any(len(np.unique(v)) > 1 for _, v in steps.values())
+
+
+def table_entry(entries, k, d) -> np.ndarray:
+    """Index into ``entries`` ((pool_size, positives, ...) tuples) of the table entry that holds for
+    each (k, d): the entry of that pool size with the largest count <= d (the first one for smaller
+    d); -1 where the table has no entry for the pool size. The one reading of a table, shared by
+    the assay and calibration."""
+    k = np.asarray(k, dtype=np.int64)
+    d = np.asarray(d, dtype=np.int64)
+    out = np.full(len(k), -1, dtype=np.int64)
+    for size in np.unique(k):
+        rows = sorted((int(e[1]), i) for i, e in enumerate(entries) if int(e[0]) == size)
+        if not rows:
+            continue
+        counts = np.array([r[0] for r in rows], dtype=np.int64)
+        index = np.array([r[1] for r in rows], dtype=np.int64)
+        sel = k == size
+        pos = np.searchsorted(counts, d[sel], side="right") - 1
+        out[sel] = index[np.maximum(pos, 0)]
+    return out
 
 
 def sensitivity_from_dict(table: dict, source: str | None = None) -> Sensitivity:

@@ -237,7 +237,7 @@ def _load_inputs(args):
                                        getattr(args, "controls", None),
                                        prevalence=args.prevalence,
                                        result_words=_result_words(args, assay))
-    run.sources["assay"] = args.assay
+    run = run.with_sources(assay=args.assay)
     if not args.assay:
         _note(args, f"no --assay given: assuming {assay.describe()}")
     if getattr(args, "assay_uncertainty", False):
@@ -984,7 +984,7 @@ def _run_regress(args):
     _check_outputs(args, out=args.out, priors=args.priors)
     assay = _read_assay(args.assay)
     run = Run.read(args.layout, args.readouts, args.samples)
-    run.sources["assay"] = args.assay
+    run = run.with_sources(assay=args.assay)
     try:
         fit = fit_regression(run, assay or PERFECT_ASSAY, formula=args.formula, link=args.link,
                              method=args.method, level=args.level, seed=args.seed)

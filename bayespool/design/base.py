@@ -14,7 +14,8 @@ import pandas as pd
 
 from ..errors import InputError
 from ..result_protocol import Result, membership_index
-from ..run import PoolIncidence, csr
+from ..csr import CSR
+from ..run import PoolIncidence
 from ..validation import check_count
 
 
@@ -138,7 +139,8 @@ class DesignProperties(Result):
 
 @dataclass(eq=False, repr=False)
 class Design(PoolIncidence, Result):
-    """A pooling design: pool ``t`` holds specimens ``pool_members[pool_ptr[t]:pool_ptr[t+1]]``.
+    """A pooling design: ``by_pool`` (a :class:`~bayespool.csr.CSR`) lists each pool's specimens;
+    pool ``t`` holds ``pool_members[pool_ptr[t]:pool_ptr[t+1]]``.
 
     ``to_frame()`` is the layout (``pool, sample``, one row per membership, index
     ``membership``); ``summary()`` and ``str()`` describe its properties, and ``str()`` lists the
@@ -163,8 +165,7 @@ class Design(PoolIncidence, Result):
 
     sample_ids: np.ndarray
     pool_ids: np.ndarray
-    pool_ptr: np.ndarray
-    pool_members: np.ndarray
+    by_pool: CSR
     properties: DesignProperties
 
     @property
@@ -173,8 +174,8 @@ class Design(PoolIncidence, Result):
 
     def sample_pools(self):
         """CSR (ptr, pools) from specimen to the pools it is in."""
-        owner = np.repeat(np.arange(self.n_pools, dtype=np.int64), self.pool_size)
-        return csr(self.pool_members.astype(np.int64), owner, self.n_samples)
+        by_sample = self.by_pool.transpose(self.n_samples)
+        return by_sample.ptr, by_sample.indices
 
     def to_frame(self) -> pd.DataFrame:
         return self.layout.set_axis(membership_index(len(self.pool_members)))
@@ -239,7 +240,7 @@ def build_design(scheme: str, sample_ids, pool_ids, pool_ptr, pool_members, *,
         pools_per_sample_max=int(weight.max()) if n else 0,
         max_overlap=overlap, disjunct=disjunct,
         parameters=dict(parameters or {}), notes=list(notes or []))
-    return Design(sample_ids, pool_ids, pool_ptr, pool_members, props)
+    return Design(sample_ids, pool_ids, CSR(pool_ptr, pool_members), props)
 
 
 def pool_labels(prefix: str, count: int, start: int = 1) -> np.ndarray:

@@ -6,6 +6,7 @@ import dataclasses
 import numpy as np
 
 from ..decoders.graph import components
+from ..csr import CSR
 from ..defaults import METHODS, NEGATIVE_BELOW, POSITIVE_ABOVE
 from ..errors import InputError
 from ..validation import (check_choice, check_count, check_nonnegative, check_positive,
@@ -65,7 +66,7 @@ def _volume_left(run, pool_volume) -> np.ndarray | None:
 
 def untested(run) -> np.ndarray:
     """True for specimens in no read pool: a prior alone never decides a specimen, however low."""
-    read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
+    read = np.repeat(run.pool_read, run.pool_size)
     return np.bincount(run.pool_members[read], minlength=run.n_samples) == 0
 
 
@@ -202,22 +203,19 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
                      "(material left, pool size, linked group size)")
         return _empty(run, False, len(undecided), batch.stop, notes, calls)
     chosen = batch.chosen
-    ptr = np.zeros(len(chosen) + 1, dtype=np.int64)
-    np.cumsum(cands.sizes[chosen], out=ptr[1:])
-    members = np.concatenate([cands.members_of(int(c)) for c in chosen])
     if batch.stop == "information" and len(chosen) < tests:
         notes.append(f"planned {len(chosen)} of {tests} tests: the others would tell less than "
                      "the minimum information")
     return Plan(run.sample_ids, np.array(fresh_pool_ids(run.pool_ids, len(chosen), id_prefix),
                                          dtype=object),
-                ptr, members, cands.kind[chosen], cands.source[chosen],
+                cands.pools.take(chosen), cands.kind[chosen], cands.source[chosen],
                 batch.positive_probability, batch.gain, batch.total_information,
                 len(undecided), False, run.pool_ids, batch.stop, xt.shape[1], notes, calls)
 
 
 def _empty(run, decided: bool, undecided: int, stop: str, notes: list, calls: dict) -> Plan:
     z = np.zeros(0)
-    return Plan(run.sample_ids, np.zeros(0, dtype=object), np.zeros(1, dtype=np.int64),
-                np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int8),
+    return Plan(run.sample_ids, np.zeros(0, dtype=object), CSR.from_rows([]),
+                np.zeros(0, dtype=np.int8),
                 np.zeros(0, dtype=np.int64), z, z, 0.0, undecided, decided, run.pool_ids, stop,
                 0, notes, calls)

@@ -25,7 +25,7 @@ LEAD_COLUMNS = ("sample", "probability", "call", "prior")
 def pool_ids_column(run, n: int) -> np.ndarray:
     """Each specimen's pools as text (``P1, P7``), the read ones first."""
     out = np.full(n, "", dtype=object)
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     for i in range(min(n, run.n_samples)):
         pools = run.pools_of(i)
         if len(pools):

@@ -165,7 +165,7 @@ def pools_from_run(run, group_columns=None) -> PooledData:
     readout is left out.
     """
     sizes = run.pool_size
-    tested = (run.n_positive + run.n_negative) > 0
+    tested = run.pool_read
     frame = pd.DataFrame({"pool": run.pool_ids, "size": sizes, "n_positive": run.n_positive,
                           "n_negative": run.n_negative})
     groups = []

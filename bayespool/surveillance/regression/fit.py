@@ -169,7 +169,7 @@ def fit_regression(run, assay, *, formula: str, link: str = "logit", method: str
     level = _check(link, method, level, max_iter)
     design = design_matrix(run, formula)
     tested = np.zeros(run.n_samples, dtype=bool)
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     tested[run.pool_members[np.repeat(read, run.pool_size)]] = True
     if not tested.any():
         raise InputError("no sample is in a pool with a readout: nothing to fit",
