@@ -123,7 +123,7 @@ def test_calibration_from_runs_shows_the_fitted_prevalence(reports, tmp_path):
     summary = reports["runs"].by_id("summary").text()
     assert "fitted by the calibration" in summary
     from bayespool.assay import Assay
-    toml = [p for p in tmp_path.parent.rglob("r.toml")]  # this session's folders only
+    toml = [p for p in tmp_path.parent.parent.rglob("r.toml")]
     fitted = Assay.read(toml[0]).details["estimates"]["prevalence"]["estimate"]
     assert f"Prevalence{fitted:.4g} fitted" in summary.replace(" ", "") or \
         f"{fitted:.4g} fitted" in summary
@@ -174,8 +174,8 @@ def test_why_view_lists_each_specimens_pools_readouts_and_other_members(demo, re
 
 
 def page_csv(demo, name):
-    return next(demo.folder.parent.rglob(name))  # this session's folders only (the machine may
-    # hold other sessions' folders beside it, with other data)
+    # this session's temporary folder only: the folder above it holds other sessions' files
+    return next(demo.folder.parent.rglob(name))
 
 
 def test_calls_table_and_plate_map_link_to_the_why_view(demo, reports):
