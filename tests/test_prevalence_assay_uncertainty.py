@@ -102,7 +102,12 @@ def test_needs_a_fitted_assay():
 def test_command_line(cli, tmp_path):
     """--assay-uncertainty end to end: calibrate writes the uncertainty, prevalence uses it."""
     assay = tmp_path / "assay.toml"
-    r = cli("calibrate", "--validation", "datasets/demo/invented_validation.csv", "--model",
+    # the binary columns of the demo's validation set (its ct columns would select the Ct fit)
+    import pandas as pd
+    binary = tmp_path / "validation.csv"
+    pd.read_csv("datasets/demo/invented_validation.csv", dtype=str)[
+        ["pool_size", "positives", "result"]].to_csv(binary, index=False)
+    r = cli("calibrate", "--validation", binary, "--model",
             "constant", "--out", assay, "--no-plot")
     assert r.code == 0, r.err
     pools = "datasets/surveillance/pools.csv"
