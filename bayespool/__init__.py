@@ -13,11 +13,11 @@ _EXPORTS = {
     "plan": "bayespool.planning", "calibrate": "bayespool.calibration",
     "make_design": "bayespool.design", "optimal_dorfman": "bayespool.design",
     "simulate": "bayespool.simulation", "sweep": "bayespool.simulation",
-    "write_report": "bayespool.report",
+    "write_report": "bayespool.report", "assay_curve": "bayespool.assay_view",
     # data and result types
     "Run": "bayespool.run", "Assay": "bayespool.assay",
     "ConstantSensitivity": "bayespool.assay", "DilutionSensitivity": "bayespool.assay",
-    "TableSensitivity": "bayespool.assay", "Posterior": "bayespool.decoders.posterior",
+    "TableSensitivity": "bayespool.assay", "AssayCurve": "bayespool.assay_view", "Posterior": "bayespool.decoders.posterior",
     "Plan": "bayespool.planning", "Calibration": "bayespool.calibration",
     "ValidationData": "bayespool.calibration", "Design": "bayespool.design",
     "DesignProperties": "bayespool.design", "DorfmanOptimum": "bayespool.design",

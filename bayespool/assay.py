@@ -12,6 +12,7 @@ from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 
 import numpy as np
+from numba import njit
 
 from .errors import InputError
 from .io import read_toml, write_text
@@ -78,7 +79,14 @@ class Sensitivity(ABC):
 
 @dataclass(frozen=True)
 class ConstantSensitivity(Sensitivity):
-    """Se(k, d) = value for every pool size and count."""
+    """Se(k, d) = value for every pool size and count.
+
+    Examples
+    --------
+    >>> from bayespool import Assay, ConstantSensitivity
+    >>> Assay(0.995, ConstantSensitivity(0.95)).describe()
+    'constant: Se = 0.95, Sp = 0.995'
+    """
 
     value: float
     model: str = field(default="constant", init=False)
@@ -93,11 +101,46 @@ class ConstantSensitivity(Sensitivity):
         return False
 
 
+@njit(cache=True)
+def dilution_point(log_r, se_max, miss_max, log_r50, slope):
+    """The dilution family at one log dilution: ``(Se, 1 - Se, fall, z)``.
+
+    z = slope (log r - log r50); ``fall`` = 1 / (1 + e^-z) is the share of ``se_max`` lost to
+    dilution, so Se = se_max / (1 + (r / r50)^slope) = se_max (1 - fall). ``1 - Se`` is
+    ``miss_max + se_max fall`` (``miss_max`` = 1 - se_max, given apart so that it can be exact), never
+    a subtraction, so log(1 - Se) stays accurate near Se = 1. The one definition of the family: the
+    assay evaluates it and calibration differentiates it (Hwang 1976).
+    """
+    z = slope * (log_r - log_r50)
+    fall, keep = 1.0 / (1.0 + np.exp(-z)), 1.0 / (1.0 + np.exp(z))
+    return se_max * keep, miss_max + se_max * fall, fall, z
+
+
+@njit(cache=True)
+def _dilution_curve(log_r, se_max, log_r50, slope):
+    out = np.empty(len(log_r))
+    for i in range(len(log_r)):
+        out[i] = dilution_point(log_r[i], se_max, 1.0 - se_max, log_r50, slope)[0]
+    return out
+
+
 @dataclass(frozen=True)
 class DilutionSensitivity(Sensitivity):
-    """Log-logistic fall in the dilution factor r = k / d: Se = se_max / (1 + (r / r50) ** slope).
+    """Log-logistic fall in the dilution factor r = k / d: Se = se_max / (1 + (r / r50) ** slope)
+    (:func:`dilution_point`).
 
     ``r50`` is the dilution at which sensitivity is half of ``se_max``.
+
+    References
+    ----------
+    Hwang, F. K. (1976). Group testing with a dilution effect. Biometrika 63(3).
+
+    Examples
+    --------
+    >>> from bayespool import Assay, DilutionSensitivity
+    >>> assay = Assay(0.995, DilutionSensitivity(0.98, 200.0, 1.5))
+    >>> round(float(assay.se(200, 1)), 2)   # half of se_max at k / d = r50
+    0.49
     """
 
     se_max: float
@@ -107,7 +150,10 @@ class DilutionSensitivity(Sensitivity):
 
     def __call__(self, k, d):
         r = np.asarray(k, dtype=float) / np.asarray(d, dtype=float)
-        return self.se_max / (1.0 + (r / self.r50) ** self.slope)
+        log_r = np.log(r)
+        out = _dilution_curve(np.ascontiguousarray(log_r, dtype=float).ravel(),
+                              float(self.se_max), float(np.log(self.r50)), float(self.slope))
+        return out.reshape(log_r.shape)[()]  # a scalar for scalar k and d, as numpy gives
 
     def to_dict(self):
         return {"model": "dilution", "se_max": self.se_max, "r50": self.r50, "slope": self.slope}
@@ -116,12 +162,20 @@ class DilutionSensitivity(Sensitivity):
 @dataclass(frozen=True)
 class TableSensitivity(Sensitivity):
     """Se given per (pool size, positives); an entry holds for its count and every larger one up to
-    the next entry of the same pool size."""
+    the next entry of the same pool size.
+
+    Examples
+    --------
+    >>> from bayespool import Assay, TableSensitivity
+    >>> table = TableSensitivity([(4, 1, 0.90), (4, 2, 0.97)])
+    >>> [round(float(Assay(0.99, table).se(4, d)), 2) for d in (1, 2, 3)]
+    [0.9, 0.97, 0.97]
+    """
 
     entries: tuple  # sorted tuples (pool_size, positives, value)
     model: str = field(default="table", init=False)
 
-    def _steps(self):
+    def _steps(self):  # pool size -> (counts, values)
         steps: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         for size in sorted({e[0] for e in self.entries}):
             rows = [e for e in self.entries if e[0] == size]
@@ -142,15 +196,9 @@ class TableSensitivity(Sensitivity):
 
     def __call__(self, k, d):
         k, d = np.broadcast_arrays(np.asarray(k, dtype=np.int64), np.asarray(d, dtype=np.int64))
-        out = np.empty(k.shape, dtype=float)
-        steps = self._steps()
         self.check_pool_sizes(k)
-        for size, (counts, values) in steps.items():
-            sel = k == size
-            if sel.any():
-                idx = np.searchsorted(counts, d[sel], side="right") - 1
-                out[sel] = values[np.maximum(idx, 0)]
-        return out
+        values = np.array([e[2] for e in self.entries], dtype=float)
+        return values[table_entry(self.entries, k.ravel(), d.ravel())].reshape(k.shape)
 
     def to_dict(self):
         return {"model": "table", "table": [{"pool_size": int(s), "positives": int(p), "value": v}
@@ -159,6 +207,26 @@ class TableSensitivity(Sensitivity):
     def depends_on_count(self):
         steps = self._steps()
         return any(len(np.unique(v)) > 1 for _, v in steps.values())
+
+
+def table_entry(entries, k, d) -> np.ndarray:
+    """Index into ``entries`` ((pool_size, positives, ...) tuples) of the table entry that holds for
+    each (k, d): the entry of that pool size with the largest count <= d (the first one for smaller
+    d); -1 where the table has no entry for the pool size. The one reading of a table, shared by
+    the assay and calibration."""
+    k = np.asarray(k, dtype=np.int64)
+    d = np.asarray(d, dtype=np.int64)
+    out = np.full(len(k), -1, dtype=np.int64)
+    for size in np.unique(k):
+        rows = sorted((int(e[1]), i) for i, e in enumerate(entries) if int(e[0]) == size)
+        if not rows:
+            continue
+        counts = np.array([r[0] for r in rows], dtype=np.int64)
+        index = np.array([r[1] for r in rows], dtype=np.int64)
+        sel = k == size
+        pos = np.searchsorted(counts, d[sel], side="right") - 1
+        out[sel] = index[np.maximum(pos, 0)]
+    return out
 
 
 def sensitivity_from_dict(table: dict, source: str | None = None) -> Sensitivity:
@@ -204,7 +272,20 @@ def sensitivity_from_dict(table: dict, source: str | None = None) -> Sensitivity
 
 @dataclass(frozen=True)
 class Assay:
-    """Specificity plus a sensitivity family; builds per-pool log-likelihood vectors."""
+    """Specificity plus a sensitivity family; builds per-pool log-likelihood vectors.
+
+    References
+    ----------
+    Dilution effect: Hwang (1976), Biometrika 63(3). Pooled readouts with Se and Sp: Kim et al.
+    (2007), Biometrics 63(4).
+
+    Examples
+    --------
+    >>> from bayespool import Assay, ConstantSensitivity
+    >>> assay = Assay(0.99, ConstantSensitivity(0.95))
+    >>> float(assay.se(4, 1))
+    0.95
+    """
 
     specificity: float
     sensitivity: Sensitivity
@@ -321,7 +402,35 @@ PERFECT_ASSAY = Assay(1.0, ConstantSensitivity(1.0))   # Se = Sp = 1: the classi
 
 
 def read_assay(path) -> Assay:
-    """Read an assay TOML file (interface.md)."""
+    """Read an assay file: the specificity and Se(k, d), or a ``[ct]`` load model.
+
+    Parameters
+    ----------
+    path : str or path-like
+        A TOML file with ``specificity`` and a ``[sensitivity]`` table (model ``constant``,
+        ``dilution`` or ``table``), or a ``[ct]`` table; ``bayespool calibrate`` writes one.
+
+    Returns
+    -------
+    Assay
+
+    Raises
+    ------
+    InputError
+        A missing or unreadable file, or a value out of range (naming the key).
+
+    References
+    ----------
+    TOML v1.0.0 (the file format). The dilution model Se(k, d) = se_max / (1 + (k / (d r50)) ^
+    slope) follows the dilution effect of Hwang (1976), Biometrika 63(3).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> assay = bayespool.read_assay("datasets/demo/assay.toml")
+    >>> assay.sensitivity.model, round(assay.specificity, 4)
+    ('dilution', 0.9967)
+    """
     return Assay.read(path)
 
 

@@ -102,7 +102,7 @@ def integrate(assay: Assay, source: str | None = None) -> IntegratedAssay:
     if not isinstance(spread, dict):
         raise InputError("the assay has no [fit.uncertainty] table, so there is no fitted "
                          "uncertainty to integrate over; write the assay file with "
-                         "bayespool calibrate, or leave out --assay-uncertainty", source)
+                         "bayespool calibrate, or leave out `assay_uncertainty`", source)
     spec = spread.get("specificity_beta")
     spec_beta = None
     if spec is not None:

@@ -1,8 +1,11 @@
 """The command line: parse, call the library, print. Bad input is one line on stderr and exit 2.
 
-Each command has a ``_add_<name>`` function that declares its options and a ``_run_<name>`` function
-that does the work through the library. Heavy modules are imported inside commands so ``--help``
-starts fast.
+Options that several commands share are declared once, as argparse parent parsers
+(:func:`_shared_options`). Each command has a ``_add_<name>`` function that declares its own options
+and a ``_run_<name>`` function that calls the library and hands the result to the one emit path
+(:func:`_emit`: ``--json`` prints ``result.summary()`` with the audit trail, otherwise
+``str(result)``). Library errors name Python parameters; :func:`main` maps them to flags through
+:data:`FLAGS`, in one place. Heavy modules are imported inside commands so ``--help`` starts fast.
 """
 from __future__ import annotations
 
@@ -14,9 +17,7 @@ import warnings
 
 from .errors import ImpossibleEvidenceError, InputError
 
-CAUTION = ("Statistical decision support, not a diagnostic device: confirm results by the "
-           "laboratory's validated procedure, local regulations and the responsible licensed "
-           "professional.")
+from .result_protocol import CAUTION, file_frame, json_ready
 
 
 # Library errors name the Python parameter; the command line shows the flag that sets it. Flags
@@ -27,7 +28,11 @@ FLAGS = {
     'gibbs_options["max_sweeps"]': "--gibbs-sweeps",
     'gibbs_options["prevalence_prior"]': "--prevalence-prior",
     'fixed["specificity"]': "--fix specificity=VALUE",
+    'fixed["se_max"]': "--fix se_max=VALUE",
     "result_words": "--result-word",
+    "plate_size": "--destination-plate-size",
+    "prefix": "--destination-prefix",
+    "reserve": "--reserve-wells",
 }
 
 
@@ -59,13 +64,6 @@ def _result_word(text: str):
     return word.strip(), meaning.strip().lower()
 
 
-def _add_result_words(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--result-word", type=_result_word, action="append", default=[],
-                   metavar="WORD=MEANING", help="read a laboratory's own result word as positive, "
-                   "negative or skip (repeatable; adds to the usual words and the assay file's "
-                   "[results] table)")
-
-
 def _result_words(args, assay=None) -> dict:
     """The laboratory's own words: the assay file's [results] table, then --result-word."""
     from .results import MEANINGS
@@ -94,11 +92,42 @@ def _inputs(args) -> dict:
     return out
 
 
-def _audit(args):
-    """The audit trail of this command (argv, version, seed, date, inputs' size and SHA-256)."""
-    from .audit import make_audit
-    return make_audit(_inputs(args), argv=getattr(args, "argv", None),
-                      seed=getattr(args, "seed", None))
+def _audit(args, inputs: dict | None = None):
+    """The audit trail of this command (argv, version, seed, date, inputs' size and SHA-256),
+    made once per command."""
+    if getattr(args, "audit", None) is None:
+        from .audit import make_audit
+        args.audit = make_audit(_inputs(args) if inputs is None else inputs,
+                                argv=getattr(args, "argv", None), seed=getattr(args, "seed", None))
+    return args.audit
+
+
+def _emit(args, result, *, extra: dict | None = None, text: str | None = None,
+          audit: bool = True, key: str | None = None) -> None:
+    """The one way a command shows its result: with ``--json`` the result's ``summary()`` (under
+    ``key`` when given) plus ``extra`` (and the audit trail), otherwise ``str(result)`` or
+    ``text`` (the result's text with what the command wrote)."""
+    if getattr(args, "json", False):
+        summary = result.summary()
+        doc = {**({key: summary} if key else summary), **(extra or {})}
+        if audit:
+            doc["audit"] = _audit(args).to_dict()
+        print(json.dumps(json_ready(doc), indent=2))
+    else:
+        print(result if text is None else text)
+
+
+def _write_table(result, path) -> None:
+    """``result.to_frame()`` as its file, written atomically (the natural ID as the first
+    column)."""
+    from .io import write_frame
+    write_frame(file_frame(result.to_frame()), path)
+
+
+def _write_report(args, path=None, **results) -> None:
+    """The offline HTML report of ``results`` with this command's audit trail."""
+    from .report import write_report
+    write_report(path or args.report, audit=_audit(args), **results)
 
 
 def _check_outputs(args, more: dict | None = None, **outputs) -> None:
@@ -109,43 +138,82 @@ def _check_outputs(args, more: dict | None = None, **outputs) -> None:
     check_outputs({**named, **(more or {})}, _inputs(args))
 
 
-def _add_run_inputs(p: argparse.ArgumentParser, readouts_required: bool = True) -> None:
+def _shared_options() -> dict:
+    """The options several commands share, declared once as argparse parent parsers: ``json``,
+    ``seed``, ``report``, ``words`` (--result-word), ``targets`` (batch targets), ``worklist``, and
+    the run inputs (``run``; ``first_stage`` where readouts may be missing)."""
     from .defaults import NEGATIVE_BELOW, POSITIVE_ABOVE, PREVALENCE
-    p.add_argument("--layout", required=True, metavar="CSV", help="pool,sample memberships")
-    p.add_argument("--readouts", required=readouts_required, metavar="CSV",
-                   help="pool,result[,ct] readouts; several rows of one pool are replicates")
-    p.add_argument("--samples", metavar="CSV", help="sample[,prior,plate,well,control]")
-    p.add_argument("--controls", metavar="CSV",
-                   help="control wells: plate,well,kind[,id,ct_min,ct_max] with kind positive, "
-                   "negative or extraction; a failed control leaves its plate's readouts out")
-    p.add_argument("--assay", metavar="TOML",
-                   help="assay model (default: constant Se 0.95, Sp 0.99, with a note)")
-    p.add_argument("--prevalence", type=_probability, default=PREVALENCE, metavar="P",
-                   help="prior probability for samples without a prior (default: %(default)s)")
-    p.add_argument("--negative-below", type=_probability, default=None,
-                   metavar="LO", help=f"call negative when probability < LO (default: "
-                   f"{NEGATIVE_BELOW}, unless --target-sensitivity is given)")
-    p.add_argument("--positive-above", type=_probability, default=None,
-                   metavar="HI", help=f"call positive when probability > HI (default: "
-                   f"{POSITIVE_ABOVE}, unless --max-false-discovery is given)")
-    _add_targets(p)
-    p.add_argument("--seed", type=int, default=None, metavar="N",
-                   help="random seed for sampling decoders (reproducible runs)")
-    p.add_argument("--assay-uncertainty", action="store_true",
-                   help="average each pool's likelihood over the fitted assay's uncertainty "
-                   "(the [fit.uncertainty] table calibrate writes); an approximation that treats "
-                   "each pool's assay as a separate draw")
-    _add_result_words(p)
 
+    def parent(*parents):
+        return argparse.ArgumentParser(add_help=False, parents=list(parents))
 
-def _add_targets(p) -> None:
-    g = p.add_argument_group("batch targets (calls that meet the laboratory's targets)")
+    json_ = parent()
+    json_.add_argument("--json", action="store_true",
+                       help="print a machine-readable summary (JSON) instead of the text")
+    seed = parent()
+    seed.add_argument("--seed", type=int, default=None, metavar="N",
+                      help="random seed (reproducible results)")
+    report = parent()
+    report.add_argument("--report", metavar="HTML", help="also write an offline HTML report")
+    words = parent()
+    words.add_argument("--result-word", type=_result_word, action="append", default=[],
+                       metavar="WORD=MEANING", help="read a laboratory's own result word as "
+                       "positive, negative or skip (repeatable; adds to the usual words and the "
+                       "assay file's [results] table)")
+    targets = parent()
+    g = targets.add_argument_group("batch targets (calls that meet the laboratory's targets)")
     g.add_argument("--target-sensitivity", type=_probability, default=None, metavar="S",
                    help="call negative the lowest-probability specimens whose expected missed "
                    "positives stay within (1 - S) of the batch's expected positives")
     g.add_argument("--max-false-discovery", type=_probability, default=None, metavar="F",
                    help="call positive the highest-probability specimens whose expected false "
                    "positives stay within F of their number")
+    worklist = parent()
+    g = worklist.add_argument_group("worklist (transfers that build the pools; needs wells in "
+                                    "--samples)")
+    g.add_argument("--worklist", metavar="CSV",
+                   help="also write the transfers: source_plate,source_well,destination_plate,"
+                   "destination_well,volume_ul,sample,pool")
+    g.add_argument("--pool-volume", type=float, default=200.0, metavar="UL",
+                   help="microlitres in each pool; every member gives UL / k (default: "
+                   "%(default)s)")
+    g.add_argument("--destination-plate-size", type=int, choices=(96, 384), default=96,
+                   help="wells per destination plate (default: %(default)s)")
+    g.add_argument("--destination-prefix", default="POOLS", metavar="NAME",
+                   help="destination plates are NAME1, NAME2, ... (default: %(default)s)")
+    g.add_argument("--reserve-wells", default=None, metavar="WELLS",
+                   help="comma-separated wells left empty on every destination plate for "
+                   "controls, e.g. G12,H12")
+
+    def run_inputs(readouts_required: bool):
+        p = parent(json_, seed, report, words, targets)
+        p.add_argument("--layout", required=True, metavar="CSV", help="pool,sample memberships")
+        p.add_argument("--readouts", required=readouts_required, metavar="CSV",
+                       help="pool,result[,ct] readouts; several rows of one pool are replicates")
+        p.add_argument("--samples", metavar="CSV", help="sample[,prior,plate,well,control]")
+        p.add_argument("--controls", metavar="CSV",
+                       help="control wells: plate,well,kind[,id,ct_min,ct_max] with kind "
+                       "positive, negative or extraction; a failed control leaves its plate's "
+                       "readouts out")
+        p.add_argument("--assay", metavar="TOML",
+                       help="assay model (default: constant Se 0.95, Sp 0.99, with a note)")
+        p.add_argument("--prevalence", type=_probability, default=PREVALENCE, metavar="P",
+                       help="prior probability for samples without a prior (default: "
+                       "%(default)s)")
+        p.add_argument("--negative-below", type=_probability, default=None,
+                       metavar="LO", help=f"call negative when probability < LO (default: "
+                       f"{NEGATIVE_BELOW}, unless --target-sensitivity is given)")
+        p.add_argument("--positive-above", type=_probability, default=None,
+                       metavar="HI", help=f"call positive when probability > HI (default: "
+                       f"{POSITIVE_ABOVE}, unless --max-false-discovery is given)")
+        p.add_argument("--assay-uncertainty", action="store_true",
+                       help="average each pool's likelihood over the fitted assay's uncertainty "
+                       "(the [fit.uncertainty] table calibrate writes); an approximation that "
+                       "treats each pool's assay as a separate draw")
+        return p
+
+    return {"json": json_, "seed": seed, "report": report, "words": words, "targets": targets,
+            "worklist": worklist, "run": run_inputs(True), "first_stage": run_inputs(False)}
 
 
 def _targets(args) -> dict:
@@ -169,7 +237,7 @@ def _load_inputs(args):
                                        getattr(args, "controls", None),
                                        prevalence=args.prevalence,
                                        result_words=_result_words(args, assay))
-    run.sources["assay"] = args.assay
+    run = run.with_sources(assay=args.assay)
     if not args.assay:
         _note(args, f"no --assay given: assuming {assay.describe()}")
     if getattr(args, "assay_uncertainty", False):
@@ -178,27 +246,18 @@ def _load_inputs(args):
     return run, assay
 
 
+def _read_assay(path):
+    """The assay file, or None when none was given."""
+    if not path:
+        return None
+    from .assay import Assay
+    return Assay.read(path)
+
+
 def _note(args, text: str) -> None:
     """A note for stderr, printed when the command succeeds: input that turns out to be bad gets
     its one error line and nothing else."""
     args.pending_notes.append(f"bayespool {args.command}: note: {text}")
-
-
-def _add_worklist_options(p) -> None:
-    g = p.add_argument_group("worklist (transfers that build the pools; needs wells in --samples)")
-    g.add_argument("--worklist", metavar="CSV",
-                   help="also write the transfers: source_plate,source_well,destination_plate,"
-                   "destination_well,volume_ul,sample,pool")
-    g.add_argument("--pool-volume", type=float, default=200.0, metavar="UL",
-                   help="microlitres in each pool; every member gives UL / k (default: "
-                   "%(default)s)")
-    g.add_argument("--destination-plate-size", type=int, choices=(96, 384), default=96,
-                   help="wells per destination plate (default: %(default)s)")
-    g.add_argument("--destination-prefix", default="POOLS", metavar="NAME",
-                   help="destination plates are NAME1, NAME2, ... (default: %(default)s)")
-    g.add_argument("--reserve-wells", default=None, metavar="WELLS",
-                   help="comma-separated wells left empty on every destination plate for "
-                   "controls, e.g. G12,H12")
 
 
 def _write_worklist(args, layout, samples, skip_pools=()):
@@ -206,80 +265,54 @@ def _write_worklist(args, layout, samples, skip_pools=()):
     from .worklist import build_worklist
     reserve = ([w.strip() for w in args.reserve_wells.split(",") if w.strip()]
                if args.reserve_wells else None)
-    try:
-        wl = build_worklist(layout, samples, pool_volume=args.pool_volume,
-                            plate_size=args.destination_plate_size,
-                            prefix=args.destination_prefix, reserve=reserve,
-                            skip_pools=skip_pools)
-    except InputError as exc:
-        msg = str(exc)
-        for param, flag in (("pool_volume", "--pool-volume"),
-                             ("destination_plate_size", "--destination-plate-size"),
-                             ("destination_prefix", "--destination-prefix")):
-            msg = msg.replace(param, flag)
-        raise InputError(msg) from None
+    wl = build_worklist(layout, samples, pool_volume=args.pool_volume,
+                        plate_size=args.destination_plate_size, prefix=args.destination_prefix,
+                        reserve=reserve, skip_pools=skip_pools)
     write_frame(wl.frame, args.worklist)
     return wl
 
 
 # ---- assay
-def _add_assay(sub):
-    p = sub.add_parser("assay", help="show what an assay file implies: the model and Se(k, d)",
+def _add_assay(sub, shared):
+    p = sub.add_parser("assay", parents=[shared["json"]],
+                       help="show what an assay file implies: the model and Se(k, d)",
                        description="Print an assay file's model and the sensitivity it implies "
                        "for every pool size k and number of positive members d = 1..k (for a "
-                       "[ct] assay, integrated over the individual Cts of the positives). "
-                       + CAUTION)
+                       "[ct] assay, integrated over the individual Cts of the positives); --json "
+                       'prints {"specificity": ..., "sensitivity": [{"pool_size", "positives", '
+                       '"value"}, ...]}. ' + CAUTION)
     p.add_argument("assay_file", metavar="ASSAY.toml", help="the assay file")
     p.add_argument("--pool-sizes", type=_int_list, default=None, metavar="K,K,...",
                    help="pool sizes to tabulate (default: 1,2,4,8,16,32, or a table's own sizes)")
     p.add_argument("--plot", metavar="FILE", help="also draw the curve (.svg or .png)")
-    p.add_argument("--json", action="store_true",
-                   help='print {"specificity": ..., "sensitivity": [{"pool_size", "positives", '
-                   '"value"}, ...]}')
     return p
 
 
 def _run_assay(args):
-    from .assay import Assay, sensitivity_table
+    from .assay import Assay
+    from .assay_view import assay_curve
     plot = args.plot
     if plot:
         _check_outputs(args, plot=plot)
         if not plot.lower().endswith((".svg", ".png")):
             raise InputError(f"--plot {plot!r}: the file name must end in .svg or .png")
-    assay = Assay.read(args.assay_file)
-    table = sensitivity_table(assay, args.pool_sizes)
+    result = assay_curve(Assay.read(args.assay_file), pool_sizes=args.pool_sizes,
+                         source=args.assay_file)
     if plot:
         from .report.plots import write_sensitivity_plot
-        write_sensitivity_plot(assay, plot, table["pool_size"].unique())
-    if args.json:
-        out = {"specificity": assay.specificity,
-               "sensitivity": [{"pool_size": int(r.pool_size), "positives": int(r.positives),
-                                "value": float(r.value)} for r in table.itertuples()]}
-        print(json.dumps(out, indent=2))
-        return 0
-    print(f"{args.assay_file}: {assay.describe()}")
-    sizes = list(table["pool_size"].unique())
-    shown = min(max(sizes), 8)
-    print(f"Se(k, d): P(a readout amplifies | pool of k, d positive members)"
-          + (f"; d > {shown} in --json" if max(sizes) > shown else ""))
-    print("     k " + "".join(f"{'d=' + str(d):>9}" for d in range(1, shown + 1)))
-    for k in sizes:
-        vals = table[table["pool_size"] == k].set_index("positives")["value"]
-        print(f"{k:>6} " + "".join(f"{vals[d]:>9.4f}" if d <= k else " " * 9
-                                   for d in range(1, shown + 1)))
-    print(f"no positive member: P(amplifies) = 1 - Sp = {1 - assay.specificity:.4g}")
-    if plot:
-        print(f"wrote {plot}")
+        write_sensitivity_plot(result.assay, plot, result.pool_sizes)
+    _emit(args, result, audit=False,
+          text=str(result) + (f"\nwrote {plot}" if plot else ""))
     return 0
 
 
 # ---- decode
-def _add_decode(sub):
+def _add_decode(sub, shared):
     from .defaults import BP_DAMPING, BP_MAX_SWEEPS, BP_TOLERANCE, METHODS
-    p = sub.add_parser("decode", help="per-sample probabilities and calls from pooled readouts",
+    p = sub.add_parser("decode", parents=[shared["run"]],
+                       help="per-sample probabilities and calls from pooled readouts",
                        description="Posterior probability that each sample is positive, and a "
                        "call, from pooled readouts. " + CAUTION)
-    _add_run_inputs(p)
     p.add_argument("--method", choices=METHODS, default="auto",
                    help="decoder (default: %(default)s: exact enumeration for small groups of linked "
                    "samples, belief propagation for large ones)")
@@ -293,8 +326,6 @@ def _add_decode(sub):
                     help="converged when no message (log-odds) changes by TOL or more in a sweep "
                     "(default: %(default)s)")
     p.add_argument("--out", required=True, metavar="CSV", help="posterior: sample,probability,call,...")
-    p.add_argument("--report", metavar="HTML", help="also write an offline HTML report")
-    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     p.add_argument("--strict", action="store_true",
                    help="exit with status 3 when the result is unreliable: belief propagation "
                    "did not converge, the readouts do not fit the assay model, or a target "
@@ -322,34 +353,10 @@ def _gibbs_options(args) -> dict:
             "prevalence_prior": args.prevalence_prior}
 
 
-def _print_gibbs(post) -> None:
-    """The sampler's stop reason and joint answers, when it ran."""
-    d = post.diagnostics
-    if "gibbs" not in d:
-        return
-    print(f"Gibbs sampler: {d['gibbs']['stop']}")
-    pos = d.get("positives_posterior")
-    if pos:
-        lo, hi = pos["interval_95"]
-        print(f"  number of positive samples: mean {pos['mean']:.2f}, 95% credible interval "
-              f"{lo} to {hi}")
-    prev = d.get("prevalence_posterior")
-    if prev:
-        a, b = prev["interval_95"]
-        print(f"  prevalence: posterior mean {prev['mean']:.4f}, 95% interval {a:.4f} to {b:.4f}")
-    groups = d.get("ambiguity_groups") or []
-    for grp in groups[:10]:
-        print(f"  pool {', '.join(grp['pools'])}: {grp['text']}")
-    if len(groups) > 10:
-        print(f"  ... and {len(groups) - 10} more ambiguity group(s) (see --json)")
-
-
 def _run_decode(args):
     from .decoders import decode
-    from .io import write_frame
     _check_outputs(args, out=args.out, report=args.report)
     run, assay = _load_inputs(args)
-    audit = _audit(args) if args.report or args.json else None
     post = decode(run, assay, method=args.method, seed=args.seed, damping=args.damping,
                   tolerance=args.tolerance, max_sweeps=args.max_sweeps,
                   gibbs_options=_gibbs_options(args), model_check=not args.no_model_check,
@@ -358,34 +365,20 @@ def _run_decode(args):
     if check is not None:
         from .controls import mark_specimens
         mark_specimens(post, run, check)
-    write_frame(post.to_frame(), args.out)
+    _write_table(post, args.out)
     if args.report:
-        from .report import write_report
-        write_report(args.report, run=run, assay=assay, posterior=post, controls=check,
-                     audit=audit)
+        _write_report(args, run=run, assay=assay, posterior=post, controls=check)
     for w in post.warnings + (check.messages if check is not None else []):
         _note(args, w)
     problems = post.problems()
-    if args.json:
-        summary = post.summary()
-        summary["audit"] = audit.to_dict()
-        summary.update({"pools": run.n_pools, "readouts": run.n_readouts, "out": args.out,
-                        "assay": assay.describe(), "reliable": not problems,
-                        "assay_uncertainty": args.assay_uncertainty})
-        if check is not None:
-            summary["controls"] = check.summary()
-        print(json.dumps(_json_ready(summary), indent=2))
-    else:
-        c = post.counts()
-        print(f"{run.n_samples} samples, {run.n_pools} pools, {run.n_readouts} readouts, "
-              f"decoded by {post.method}: {c['positive']} positive, {c['negative']} negative, "
-              f"{c['inconclusive']} inconclusive" +
-              (f", {c['untested']} untested" if c["untested"] else ""))
-        _print_batch(post)
-        _print_gibbs(post)
-        if check is not None:
-            print("\n".join(check.lines()))
-        print(f"wrote {args.out}" + (f" and {args.report}" if args.report else ""))
+    extra = {"pools": run.n_pools, "readouts": run.n_readouts, "out": args.out,
+             "assay": assay.describe(), "reliable": not problems,
+             "assay_uncertainty": args.assay_uncertainty}
+    if check is not None:
+        extra["controls"] = check.summary()
+    _emit(args, post, extra=extra,
+          text="\n".join([str(post)] + ([str(check)] if check is not None else [])
+                         + [f"wrote {args.out}" + (f" and {args.report}" if args.report else "")]))
     if args.strict and problems:
         for why in problems:
             print(f"bayespool {args.command}: unreliable: {why}", file=sys.stderr)
@@ -393,29 +386,8 @@ def _run_decode(args):
     return 0
 
 
-def _print_batch(post) -> None:
-    """What the batch can expect of its calls, and the model check, in a few lines."""
-    b = post.batch
-    if b:
-        def span(e, fmt):
-            return f"{format(e['mean'], fmt)} ({format(e['low'], fmt)} to {format(e['high'], fmt)})"
-        print(f"calls: {post.decision_rule.describe()}")
-        print(f"  expected missed positives among negative calls: "
-              f"{span(b['expected_missed'], '.2f')}")
-        print(f"  expected false positives among positive calls: "
-              f"{span(b['expected_false_positives'], '.2f')}")
-        print(f"  expected batch sensitivity {span(b['expected_sensitivity'], '.3f')}, false "
-              f"discovery rate {span(b['expected_false_discovery_rate'], '.3f')} "
-              f"(95% intervals; {b['basis']})")
-    m = post.model_check
-    if m and m["checks"]:
-        verdict = "does not fit" if m["warnings"] else "no misfit found"
-        print(f"model check: {verdict} (posterior predictive p = {m['p_value']:.3g}, "
-              f"{len(m['checks'])} checks)")
-
-
 # ---- demo
-def _add_demo(sub):
+def _add_demo(sub, shared):
     p = sub.add_parser("demo", help="run the whole job on built-in invented data",
                        description="Calibrate the assay, decode a screening run, plan the next "
                        "tests and write the report, on invented data, every file into one "
@@ -427,22 +399,7 @@ def _add_demo(sub):
 
 def _run_demo(args):
     from .demo import run_demo
-    result = run_demo(args.out_dir)
-    post, cal, nxt = result.posterior, result.calibration, result.plan
-    c = post.counts()
-    agree = result.agreement()
-    print("bayespool demo: the whole job on an invented screening run (not real data)")
-    print(f"  1. calibrated the assay from {cal.summary()['readouts']} invented validation "
-          f"readouts: {cal.assay.describe()}")
-    print(f"  2. decoded {post.n_samples} specimens by {post.method}: {c['positive']} positive, "
-          f"{c['negative']} negative, {c['inconclusive']} inconclusive "
-          f"(decided calls matching the invented truth: {agree['correct']} of {agree['decided']})")
-    print(f"  3. planned {nxt.n_tests} next test(s) for the inconclusive specimens")
-    print(f"  4. wrote the report {result.files['report']}")
-    print(f"  files in {result.folder}/:")
-    for name, path in result.files.items():
-        print(f"    {name:<11} {path}")
-    print("  " + CAUTION)
+    print(run_demo(args.out_dir))
     return 0
 
 
@@ -468,8 +425,9 @@ def _float_list(text: str) -> list[float]:
     return _number_list(text, float)
 
 
-def _add_design(sub):
-    p = sub.add_parser("design", help="make a pooling layout (dorfman, array, kautz-singleton, "
+def _add_design(sub, shared):
+    p = sub.add_parser("design", parents=[shared["json"], shared["seed"], shared["worklist"]],
+                       help="make a pooling layout (dorfman, array, kautz-singleton, "
                        "random, code) or find the best Dorfman pool size",
                        description="Write a pooling layout (pool,sample) and print its properties: "
                        "pools, pool sizes, pools per specimen and the disjunctness it guarantees. "
@@ -504,7 +462,6 @@ def _add_design(sub):
                    help="random: pools each specimen is in (default: %(default)s)")
     p.add_argument("--pools", type=int, metavar="T",
                    help="random: number of pools (default: the fewest within --max-pool-size)")
-    p.add_argument("--seed", type=int, metavar="N", help="random: seed (reproducible layouts)")
     p.add_argument("--errors", type=int, default=1, metavar="E",
                    help="code: wrong readouts to tolerate when one specimen is positive "
                    "(default: %(default)s)")
@@ -520,8 +477,6 @@ def _add_design(sub):
     p.add_argument("--target-sensitivity", type=_probability, metavar="S",
                    help="with --optimize: the cheapest pool size whose sensitivity (closed form) "
                    "is at least S")
-    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
-    _add_worklist_options(p)
     return p
 
 
@@ -540,40 +495,33 @@ def _design_options(args) -> dict:
 
 def _run_design(args):
     from .design import make_design, optimal_dorfman
-    from .io import write_frame
+    from .design.specimens import specimens
     if args.by_risk and args.scheme != "dorfman":
         raise InputError("--by-risk is for --scheme dorfman")
     _check_outputs(args, out=args.out, worklist=args.worklist)
-    summary = {}
+    opt = None
     if args.optimize:
         if args.scheme != "dorfman":
             raise InputError("--optimize is for --scheme dorfman")
         if args.prevalence is None:
             raise InputError("--optimize needs --prevalence P")
-        assay = None
-        if args.assay:
-            from .assay import Assay
-            assay = Assay.read(args.assay)
-        opt = optimal_dorfman(args.prevalence, assay, max_pool_size=args.max_pool_size,
+        opt = optimal_dorfman(args.prevalence, _read_assay(args.assay),
+                              max_pool_size=args.max_pool_size,
                               target_sensitivity=args.target_sensitivity)
         if not opt.meets_target:
             _note(args, f"no pool size reaches a sensitivity of {args.target_sensitivity:g} "
                   f"(the best is {opt.best.sensitivity:.4f} at k = {opt.best.pool_size}): "
                   "consider a repeat test of positives or a more sensitive assay")
-        summary["optimum"] = opt.to_dict()
-        summary["optimum"]["assay"] = assay.describe() if assay else "error-free"
-        if not args.json:
-            _print_optimum(opt, assay, args.max_pool_size is not None)
         args.pool_size = opt.best.pool_size
     elif args.prevalence is not None or args.assay or args.target_sensitivity is not None:
         raise InputError("--prevalence, --assay and --target-sensitivity go with --optimize")
     if args.samples is None or args.out is None:
-        if args.optimize and args.samples is None and args.out is None:
-            if args.json:
-                print(json.dumps(summary, indent=2))
+        if opt is not None and args.samples is None and args.out is None:
+            _emit(args, opt, key="optimum", audit=False)
             return 0
         raise InputError("give both --samples N|CSV and --out LAYOUT.csv")
-    from .design.specimens import specimens
+    if opt is not None and not args.json:
+        print(opt)
     spec = specimens(args.samples)
     if args.worklist and (spec.table is None or "well" not in spec.table.columns):
         raise InputError("--worklist needs --samples to be a samples file with a well column "
@@ -581,56 +529,23 @@ def _run_design(args):
     design = make_design(args.scheme, spec, max_pool_size=args.max_pool_size,
                          **_design_options(args))
     wl = _write_worklist(args, design.layout, spec.table) if args.worklist else None
-    write_frame(design.layout, args.out)
-    if args.json:
-        summary.update(design.properties.to_dict())
-        summary["out"] = args.out
-        summary["audit"] = _audit(args).to_dict()
-        if wl is not None:
-            summary["worklist"] = dict(wl.summary(), out=args.worklist)
-        print(json.dumps(_json_ready(summary), indent=2))
-    else:
-        print("\n".join(design.properties.lines()))
-        if wl is not None:
-            print("\n".join(wl.lines()))
-            print(f"wrote {args.worklist}")
-        if args.scheme == "code" and design.n_samples <= 64:
-            for t in range(design.n_pools):
-                print(f"  pool {design.pool_ids[t]}: "
-                      + " ".join(map(str, design.sample_ids[design.members(t)])))
-        print(f"wrote {args.out}")
+    _write_table(design, args.out)
+    extra = {"out": args.out}
+    if opt is not None:
+        extra["optimum"] = opt.summary()
+    if wl is not None:
+        extra["worklist"] = dict(wl.summary(), out=args.worklist)
+    text = str(design) if wl is None else "\n".join(
+        [str(design.properties), str(wl), f"wrote {args.worklist}"] + design.pool_lines())
+    _emit(args, design, extra=extra, text=f"{text}\nwrote {args.out}")
     return 0
 
 
-def _print_optimum(opt, assay, capped: bool) -> None:
-    b = opt.best
-    source = ("Kim et al. 2007 closed forms" + (" with dilution" if
-              assay.sensitivity.model != "constant" else "")) if assay else \
-        "error-free test, Dorfman 1943"
-    print(f"Dorfman pooling at prevalence {b.prevalence:g} ({source})")
-    if not opt.saves and opt.target_sensitivity is None:
-        print(f"  pooling saves nothing at this prevalence: test each specimen alone "
-              f"(pool sizes 2 to {opt.max_pool_size} all cost more)")
-    limit = ""
-    if opt.at_limit:
-        limit = (" (the --max-pool-size limit: larger pools would cost fewer tests)" if capped
-                 else " (the largest size searched: a larger --max-pool-size may do better)")
-    if opt.target_sensitivity is not None:
-        print(f"  among pool sizes with a sensitivity of at least {opt.target_sensitivity:g}"
-              + ("" if opt.meets_target else ": none reaches it, so the most sensitive"))
-    print(f"  best pool size: {b.pool_size}{limit}")
-    print(f"  expected tests per specimen: {b.tests_per_sample:.4f} "
-          f"({100 * (1 - b.tests_per_sample):.1f}% fewer than one test each)")
-    print(f"  pooled sensitivity: {b.sensitivity:.4f}, pooled specificity: {b.specificity:.4f}")
-    t = opt.table.sort_values("tests_per_sample").head(5).sort_values("pool_size")
-    print("  nearby: " + ", ".join(f"k={int(r.pool_size)}: {r.tests_per_sample:.4f}"
-                                   for r in t.itertuples()))
-
-
 # ---- simulate
-def _add_simulate(sub):
+def _add_simulate(sub, shared):
     from .defaults import NEGATIVE_BELOW, POSITIVE_ABOVE
-    p = sub.add_parser("simulate", help="operating characteristics of testing protocols by "
+    p = sub.add_parser("simulate", parents=[shared["json"], shared["seed"], shared["report"],
+                                            shared["targets"]], help="operating characteristics of testing protocols by "
                        "simulation", description="Simulate testing protocols on invented cohorts "
                        "with readouts drawn from the assay model (dilution included): tests, "
                        "sensitivity, specificity, predictive values, rounds and draws per "
@@ -658,18 +573,14 @@ def _add_simulate(sub):
     p.add_argument("--positive-above", type=_float_list, default=None,
                    metavar="HI[,HI...]", help="decoding protocols: call positive above HI "
                    f"(default: {POSITIVE_ABOVE}, unless --max-false-discovery is given)")
-    _add_targets(p)
     p.add_argument("--tests", type=int, metavar="N",
                    help="decoding protocols: tests per round")
     p.add_argument("--method", metavar="NAME", help="decoding protocols: decoder")
     p.add_argument("--runs", type=int, default=1000, metavar="R",
                    help="simulated cohorts per setting (default: %(default)s)")
-    p.add_argument("--seed", type=int, metavar="S", help="random seed (reproducible results)")
     p.add_argument("--out", metavar="CSV", help="also write the results table")
-    p.add_argument("--json", action="store_true", help="print the results as JSON")
     p.add_argument("--plots", metavar="DIR", help="write a figure per measure (tests per "
                    "specimen, sensitivity, specificity against prevalence) as PNG and SVG here")
-    p.add_argument("--report", metavar="HTML", help="write the study as an HTML report")
     where = p.add_mutually_exclusive_group()
     where.add_argument("--workers", type=int, metavar="N",
                        help="play the cohorts on N local worker processes (a Dask LocalCluster); "
@@ -690,18 +601,31 @@ def _announce_estimate(estimate) -> None:
 
 def _run_simulate(args):
     from .simulation.engine import cluster_client
+    from .simulation.simulator import Sweep
+    from .simulation.study import run_study
     if args.workers is not None and args.workers < 1:
         raise InputError(f"--workers must be at least 1, got {args.workers}")
-    _check_simulate(args)
+    study = _check_simulate(args)
     with cluster_client(args.workers, args.scheduler) as client:
-        return _simulate_on(args, client)
-
-
-def _simulate_options(args) -> dict:
-    return {"rows": args.rows, "cols": args.cols, "max_pool_size": args.max_pool_size,
-            "tests": args.tests, "method": args.method,
-            "target_sensitivity": args.target_sensitivity,
-            "max_false_discovery": args.max_false_discovery}
+        result = run_study(args.schemes, args.samples, assays=args.assays, seed=args.seed,
+                           progress=sys.stderr.isatty(), client=client,
+                           on_estimate=_announce_estimate, **study)
+    study = result if isinstance(result, Sweep) else Sweep([result])
+    table, audit = study.table, _audit(args, args.input_files)
+    written = []
+    if args.out:
+        from .io import write_frame
+        write_frame(table, args.out)
+        written.append(args.out)
+    if args.plots:
+        from .simulation.plots import write_plots
+        written += [str(p) for p in write_plots(table, args.plots)]
+    if args.report:
+        from .report.study import write_study_report
+        write_study_report(args.report, study, audit=audit)
+        written.append(args.report)
+    _emit(args, result, text=str(result) + (f"\nwrote {', '.join(written)}" if written else ""))
+    return 0
 
 
 def _comma_names(text: str, what: str) -> list[str]:
@@ -713,14 +637,14 @@ def _comma_names(text: str, what: str) -> list[str]:
     return names
 
 
-def _check_simulate(args):
-    """Every option checked before any work (and before a cluster starts)."""
+def _check_simulate(args) -> dict:
+    """The study's options, checked before any work (and before a cluster starts)."""
     from pathlib import Path
 
     from .assay import DEFAULT_ASSAY, Assay
+    from .design.specimens import specimens
     from .io import check_outputs
-    from .simulation.protocols import accepted_options, make_protocol
-    from .validation import check_count, check_open_probability
+    from .simulation.study import check_study
     args.schemes = _comma_names(args.scheme, "--scheme")
     args.assay_files = _comma_names(args.assay, "--assay") if args.assay else []
     outputs = {f"--{k}": getattr(args, k) for k in ("out", "report") if getattr(args, k)}
@@ -736,183 +660,20 @@ def _check_simulate(args):
     args.input_files.update({f"--assay {f}" if len(args.assay_files) > 1 else "--assay": f
                              for f in args.assay_files})
     check_outputs(outputs, args.input_files)
-    accepted = {s: accepted_options(s) for s in args.schemes}  # unknown schemes fail here
-    for option, value in (("pool_size", args.pool_size), ("rows", args.rows),
-                          ("cols", args.cols), ("tests", args.tests), ("method", args.method),
-                          ("target_sensitivity", args.target_sensitivity),
-                          ("max_false_discovery", args.max_false_discovery)):
-        if value is not None and not any(a is None or option in a for a in accepted.values()):
-            raise InputError(f"--{option.replace('_', '-')} does not apply to the "
-                             f"{', '.join(args.schemes)} scheme{'s' if len(accepted) > 1 else ''}")
-    options = _simulate_options(args)
-    for scheme in args.schemes:  # checks the options before any work
-        for k in args.pool_size or [None]:
-            for lo in args.negative_below or [None]:
-                for hi in args.positive_above or [None]:
-                    make_protocol(scheme, pool_size=k, negative_below=lo, positive_above=hi,
-                                  **options)
-    for p in args.prevalence or []:
-        check_open_probability(p, "prevalence")
-    check_count(args.runs, "runs")
-    from .design.specimens import specimens
+    study = {"prevalences": args.prevalence, "pool_sizes": args.pool_size,
+             "negative_below": args.negative_below, "positive_above": args.positive_above,
+             "runs": args.runs, "rows": args.rows, "cols": args.cols,
+             "max_pool_size": args.max_pool_size, "tests": args.tests, "method": args.method,
+             "target_sensitivity": args.target_sensitivity,
+             "max_false_discovery": args.max_false_discovery}
+    check_study(args.schemes, **study)
     args.samples = specimens(args.samples)
     if args.assay_files:
         args.assays = {f: Assay.read(f) for f in args.assay_files}
     else:
         _note(args, f"no --assay given: assuming {DEFAULT_ASSAY.describe()}")
         args.assays = {None: DEFAULT_ASSAY}
-
-
-def _single_cell(args) -> bool:
-    return all(v is None or len(v) == 1 for v in (
-        args.schemes, args.prevalence, args.pool_size, list(args.assays),
-        args.negative_below, args.positive_above))
-
-
-def _simulate_on(args, client):
-    from .io import write_frame
-    from .simulation import simulate, sweep
-    from .simulation.simulator import Sweep
-    prevs, sizes = args.prevalence, args.pool_size
-    options = _simulate_options(args)
-    progress = sys.stderr.isatty()
-    where = {"client": client, "on_estimate": _announce_estimate}
-    lo, hi = args.negative_below, args.positive_above
-    if _single_cell(args):
-        [assay] = args.assays.values()
-        sim = simulate(args.schemes[0], args.samples, prevalence=prevs[0] if prevs else None,
-                       assay=assay, runs=args.runs, seed=args.seed, progress=progress,
-                       pool_size=sizes[0] if sizes else None,
-                       negative_below=lo[0] if lo else None,
-                       positive_above=hi[0] if hi else None, **where, **options)
-        result = Sweep([sim])
-    else:
-        many = len(args.assays) > 1
-        result = sweep(args.schemes, args.samples, prevalences=prevs,
-                       pool_sizes=sizes if sizes and len(sizes) > 1 else None,
-                       assay=None if many else next(iter(args.assays.values())),
-                       runs=args.runs, seed=args.seed, progress=progress,
-                       assays=args.assays if many else None, negative_below=lo,
-                       positive_above=hi, **where,
-                       **({"pool_size": sizes[0]} if sizes and len(sizes) == 1 else {}),
-                       **options)
-    table = result.table
-    if args.out:
-        write_frame(table, args.out)
-    written = [args.out] if args.out else []
-    if args.plots:
-        from .simulation.plots import write_plots
-        written += [str(p) for p in write_plots(table, args.plots)]
-    from .audit import make_audit
-    audit = make_audit(args.input_files, argv=getattr(args, "argv", None), seed=args.seed)
-    if args.report:
-        from .report.study import write_study_report
-        write_study_report(args.report, result, audit=audit)
-        written.append(args.report)
-    if args.json:
-        doc = result.results[0].to_dict() if len(result.results) == 1 and _single_cell(args) \
-            else {"points": result.to_dict()}
-        print(json.dumps(_json_ready({**doc, "audit": audit.to_dict()}), indent=2))
-    elif len(result.results) == 1:
-        sim = result.results[0]
-        _print_simulation(sim, sim.characteristics.table())
-    else:
-        _print_sweep(result, table)
-    if written and not args.json:
-        print(f"wrote {', '.join(written)}")
-    return 0
-
-
-def _json_ready(value):
-    """NaN and infinities have no JSON spelling: they become null."""
-    import math
-    if isinstance(value, dict):
-        return {k: _json_ready(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_json_ready(v) for v in value]
-    if hasattr(value, "item"):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
-
-
-def _fmt(value, se=None, digits=4) -> str:
-    """A value to ``digits`` decimals, more when its standard error needs them (2 significant)."""
-    import math
-    if value is None or (isinstance(value, float) and math.isnan(value)):
-        return "n/a"
-    if se is not None and not (isinstance(se, float) and math.isnan(se)):
-        if se > 0:
-            digits = min(max(digits, 1 - math.floor(math.log10(se))), 8)
-        return f"{value:.{digits}f} ± {se:.{digits}f}"
-    return f"{value:.{digits}f}"
-
-
-LABELS = {"tests_per_sample": "tests per specimen", "sensitivity": "sensitivity",
-          "specificity": "specificity", "ppv": "positive predictive value",
-          "npv": "negative predictive value", "rounds": "rounds (turnaround)",
-          "draws_per_sample": "draws per specimen"}
-
-
-def _param_text(value) -> str:
-    """A protocol parameter for people: ``none`` rather than Python's None."""
-    if value is None:
-        return "none"
-    return f"{value:g}" if isinstance(value, float) else str(value)
-
-
-def _print_simulation(sim, table) -> None:
-    params = ", ".join(f"{k.replace('_', ' ')} {_param_text(v)}"
-                       for k, v in sim.parameters.items())
-    c = sim.characteristics
-    prev = f"prevalence {sim.prevalence:g}" if sim.prevalence is not None else "per-specimen priors"
-    print(f"{sim.scheme}" + (f" ({params})" if params else "") + f", {c.specimens} specimens, "
-          f"{prev}, {sim.assay.describe()}")
-    print(f"{c.runs} simulated runs (estimate ± Monte Carlo standard error)"
-          + (f"; closed form: {sim.expected['source']}" if sim.expected is not None else ""))
-    for row in table.itertuples():
-        shown = _fmt(row.estimate, row.mcse)
-        line = f"  {LABELS[row.characteristic]:<27} {shown:>20}"
-        if sim.expected is not None and row.characteristic in sim.expected:
-            decimals = len(shown.split(" ")[0].partition(".")[2]) or 4
-            line += f"   closed form {_fmt(sim.expected[row.characteristic], digits=decimals)}"
-        print(line)
-    print(f"  most draws from one specimen: {c.max_draws}")
-    for note in sim.notes:
-        print(f"  note: {note}")
-    print("  " + CAUTION)
-
-
-def _blank(value) -> bool:
-    return value is None or (isinstance(value, float) and value != value)
-
-
-def _print_sweep(result, table) -> None:
-    first = result.results[0]
-    schemes = list(dict.fromkeys(table["scheme"]))
-    assays = list(dict.fromkeys(s.assay.describe() for s in result.results))
-    print(f"{', '.join(schemes)} {'study' if len(schemes) > 1 else 'sweep'}, "
-          f"{first.characteristics.specimens} specimens, "
-          f"{first.characteristics.runs} runs per setting"
-          + (f", {assays[0]}" if len(assays) == 1 else ""))
-    keys = [k for k in ("scheme", "prevalence", "assay", "pool_size", "rows", "cols",
-                        "negative_below", "positive_above")
-            if k in table.columns and (k != "scheme" or len(schemes) > 1)]
-    cols = ["tests_per_sample", "sensitivity", "specificity", "ppv", "npv", "rounds"]
-    head = [k.replace("_", " ") for k in keys] + ["tests/specimen", "sensitivity",
-                                                  "specificity", "PPV", "NPV", "rounds"]
-    rows = []
-    for r in table.to_dict("records"):
-        cells = ["" if _blank(r[k]) else (f"{r[k]:g}" if isinstance(r[k], (int, float))
-                                          else str(r[k])) for k in keys]
-        cells += [_fmt(r[c], r[f"{c}_se"], 3) for c in cols]
-        rows.append(cells)
-    widths = [max(len(h), *(len(row[i]) for row in rows)) for i, h in enumerate(head)]
-    print("  ".join(h.rjust(w) for h, w in zip(head, widths)))
-    for row in rows:
-        print("  ".join(c.rjust(w) for c, w in zip(row, widths)))
-    print("(estimate ± Monte Carlo standard error) " + CAUTION)
+    return study
 
 
 # ---- calibrate
@@ -927,8 +688,9 @@ def _fixed_value(text: str):
                                          f"{value!r}") from None
 
 
-def _add_calibrate(sub):
-    p = sub.add_parser("calibrate", help="fit the assay (specificity, sensitivity and its fall "
+def _add_calibrate(sub, shared):
+    p = sub.add_parser("calibrate", parents=[shared["json"], shared["seed"], shared["report"],
+                                             shared["words"]], help="fit the assay (specificity, sensitivity and its fall "
                        "with dilution) from validation runs or past runs",
                        description="Fit the assay model and write an assay file for decode and "
                        "plan. From validation runs with known truth (--validation), or from past "
@@ -955,19 +717,13 @@ def _add_calibrate(sub):
     p.add_argument("--gof-draws", type=int, default=0, metavar="N",
                    help="validation: also a parametric bootstrap p-value for the goodness of fit "
                    "from N refitted simulations (default: none)")
-    p.add_argument("--seed", type=int, default=None, metavar="N",
-                   help="random seed for the bootstrap and the plot's band")
     p.add_argument("--no-plot", action="store_true",
                    help="do not write the sensitivity plot (PNG and SVG beside the assay file)")
-    p.add_argument("--report", metavar="HTML",
-                   help="also write an offline HTML report of the fit and the fitted assay")
-    _add_result_words(p)
     p.add_argument("--allow-unidentified", action="store_true",
                    help="past runs: write the fit even when the data cannot identify it (it is "
                    "marked so in the file); without this such a fit is refused with the reason")
     p.add_argument("--ct-cutoff", type=float, default=40.0, metavar="CT",
                    help="validation with a ct column: the run's Ct cutoff (default: %(default)s)")
-    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
 
 
@@ -976,31 +732,20 @@ def _run_calibrate_ct(args, table):
     from .calibration.ct_fit import calibrate_ct
     result = calibrate_ct(table, cutoff=args.ct_cutoff)
     result.assay.write(args.out)
-    if args.json:
-        summary = result.summary()
-        summary["out"] = args.out
-        print(json.dumps(summary, indent=2))
-    else:
-        print(result.text())
-        print(f"wrote {args.out} (the Ct fit writes no sensitivity plot; `bayespool assay "
-              f"{args.out} --plot FILE` draws the implied curve)")
-        print(CAUTION)
+    _emit(args, result, extra={"out": args.out},
+          text=f"{result}\nwrote {args.out} (the Ct fit writes no sensitivity plot; `bayespool "
+               f"assay {args.out} --plot FILE` draws the implied curve)\n{CAUTION}")
     return 0
 
 
 def _run_calibrate(args):
-    from .calibration import calibrate_runs, calibrate_validation
+    from .calibration import calibrate
     from .calibration.plot import figure, plot_paths, write_plots
     from .calibration.validation import ValidationData
-    from .run import Run
     if args.validation and (args.layout or args.readouts or args.samples):
         raise InputError("give either --validation or --layout/--readouts, not both")
     if not args.validation and not (args.layout and args.readouts):
         raise InputError("give --validation, or --layout and --readouts of past runs")
-    if args.gof_draws < 0:
-        raise InputError(f"--gof-draws must be >= 0, got {args.gof_draws}")
-    if args.gof_draws and not args.validation:
-        raise InputError("--gof-draws applies to validation data only")
     fixed = {}
     for name, value in args.fix:
         if name in fixed:
@@ -1009,62 +754,50 @@ def _run_calibrate(args):
     plots = {} if args.no_plot else plot_paths(args.out)
     _check_outputs(args, {f"the {kind.upper()} plot beside --out": str(path)
                           for kind, path in plots.items()}, out=args.out, report=args.report)
-    run = None
+    data = run = None
     words = _result_words(args)
     if args.validation:
         from .io import read_table
         table = read_table(args.validation, ["pool_size", "positives", "result"], "validation")
         if "ct" in table.header:
             return _run_calibrate_ct(args, table)
-    if args.validation:
         data = ValidationData.read(args.validation, words=words)
-        result = calibrate_validation(data, args.model, fixed, level=args.level,
-                                      intervals=args.intervals, gof_draws=args.gof_draws,
-                                      seed=args.seed)
     else:
+        from .run import Run
         run = Run.read(args.layout, args.readouts, args.samples, result_words=words)
-        result = calibrate_runs(run, args.model, fixed, level=args.level,
-                                intervals=args.intervals)
-        if not args.allow_unidentified:
-            result.check_identified()
-    audit = _audit(args) if args.report or args.json else None
+    result = calibrate(data, run, model=args.model, fixed=fixed, level=args.level,
+                       intervals=args.intervals, gof_draws=args.gof_draws, seed=args.seed)
+    if run is not None and not args.allow_unidentified:
+        result.check_identified()
     fig = figure(result) if plots else None
     result.assay.write(args.out)
     if plots:
         write_plots(result, args.out, fig)
     written = [args.out] + [str(p) for p in plots.values()]
     if args.report:
-        from .report import write_report
-        write_report(args.report, run=run if not args.validation else None, assay=result.assay,
-                     calibration=result, title="bayespool calibration report", audit=audit)
+        _write_report(args, run=run, assay=result.assay,
+                      calibration=result, title="bayespool calibration report")
         written.append(args.report)
     if args.json:
         for w in result.warnings:
             _note(args, w)
-        summary = result.summary()
-        summary["out"] = args.out
-        summary["audit"] = audit.to_dict()
-        summary["plots"] = {k: str(v) for k, v in plots.items()}
-        if args.report:
-            summary["report"] = args.report
-        print(json.dumps(summary, indent=2))
-    else:
-        print(result.text())
-        print(f"wrote {', '.join(written)}")
-        print(CAUTION)
+    extra = {"out": args.out, "plots": {k: str(v) for k, v in plots.items()}}
+    if args.report:
+        extra["report"] = args.report
+    _emit(args, result, extra=extra, text=f"{result}\nwrote {', '.join(written)}\n{CAUTION}")
     return 0
 
 
 # ---- plan
-def _add_plan(sub):
+def _add_plan(sub, shared):
     from .defaults import METHODS
     from .planning import DEFAULT_DRAWS, DEFAULT_MAX_LINKED, DEFAULT_MAX_POOL_SIZE, DEFAULT_MIN_INFORMATION
-    p = sub.add_parser("plan", help="the next most informative pools for the undecided samples",
+    p = sub.add_parser("plan", parents=[shared["first_stage"], shared["worklist"]],
+                       help="the next most informative pools for the undecided samples",
                        description="Choose the next batch of pools by expected information gain "
                        "about the undecided samples, given the readouts so far. An empty layout "
                        "and readouts (header only) with a --samples list plan a first stage. "
                        + CAUTION)
-    _add_run_inputs(p, readouts_required=False)
     p.add_argument("--tests", type=int, required=True, metavar="N",
                    help="batch size: at most N pools (one readout each)")
     p.add_argument("--max-pool-size", type=int, default=DEFAULT_MAX_POOL_SIZE, metavar="K",
@@ -1086,23 +819,17 @@ def _add_plan(sub):
     p.add_argument("--out", required=True, metavar="CSV",
                    help="next pools: pool,sample,kind,positive_probability,information_bits,"
                    "follows_pool")
-    p.add_argument("--report", metavar="HTML",
-                   help="also write an offline HTML report with the planned pools")
-    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
-    _add_worklist_options(p)
     return p
 
 
 def _run_plan(args):
     from .decoders import decode
-    from .io import write_frame
     from .planning import plan
     report = args.report
     _check_outputs(args, out=args.out, report=report, worklist=args.worklist)
     if args.worklist and not args.samples:
         raise InputError("--worklist needs --samples with the specimens' plate and well")
     run, assay = _load_inputs(args)
-    audit = _audit(args) if report or args.json else None
     if run.n_samples == 0:
         raise InputError("no samples: the layout is empty and no --samples file lists any",
                          args.layout)
@@ -1111,44 +838,33 @@ def _run_plan(args):
                   max_draws=args.max_draws, n_draws=args.posterior_draws, seed=args.seed,
                   min_information=args.min_information, max_linked=args.max_linked,
                   pool_volume=args.pool_volume if args.worklist else None)
-    frame = result.to_frame()
     wl = None
     if args.worklist:
+        frame = file_frame(result.to_frame())
         replicates = frame.loc[frame["kind"] == "replicate", "pool"].unique()
         samples = run.samples.copy()
         samples["sample"] = run.sample_ids[samples.index.to_numpy()]
         wl = _write_worklist(args, frame, samples, skip_pools=replicates)
-    write_frame(frame, args.out)
-    if report:
-        from .report import write_report
-        write_report(report, run=run, assay=assay, posterior=post, plan=frame,
-                     controls=args.control_check, worklist=wl, audit=audit)
+    _write_table(result, args.out)
     check = args.control_check
+    if report:
+        _write_report(args, run=run, assay=assay, posterior=post, plan=result, controls=check,
+                      worklist=wl)
     for w in post.warnings + result.notes + (check.messages if check is not None else []):
         _note(args, w)
-    if args.json:
-        summary = result.summary()
-        summary.update({"samples": run.n_samples, "out": args.out, "assay": assay.describe(),
-                        "assay_uncertainty": args.assay_uncertainty,
-                        "audit": audit.to_dict()})
-        if wl is not None:
-            summary["worklist"] = dict(wl.summary(), out=args.worklist)
-        if check is not None:
-            summary["controls"] = check.summary()
-        print(json.dumps(_json_ready(summary), indent=2))
-    elif result.decided:
-        print(f"every sample is decided ({run.n_samples} samples): no test to plan; wrote a "
-              f"header only to {args.out}")
+    extra = {"samples": run.n_samples, "out": args.out, "assay": assay.describe(),
+             "assay_uncertainty": args.assay_uncertainty}
+    if wl is not None:
+        extra["worklist"] = dict(wl.summary(), out=args.worklist)
+    if check is not None:
+        extra["controls"] = check.summary()
+    if result.decided:
+        text = f"{result}; wrote a header only to {args.out}"
     else:
-        c = post.counts()
-        print(f"{run.n_samples} samples: {c['positive']} positive, {c['negative']} negative, "
-              f"{c['inconclusive']} undecided")
-        print(f"planned {result.n_tests} pools ({len(result.pool_members)} memberships), "
-              f"expected information {result.total_information:.2f} bits; wrote {args.out}"
-              + (f" and {report}" if report else ""))
+        text = f"{result}; wrote {args.out}" + (f" and {report}" if report else "")
         if wl is not None:
-            print("\n".join(wl.lines()))
-            print(f"wrote {args.worklist}")
+            text += f"\n{wl}\nwrote {args.worklist}"
+    _emit(args, result, extra=extra, text=text)
     return 0
 
 
@@ -1164,17 +880,9 @@ def _names(text: str) -> list[str]:
     return [c.strip() for c in text.split(",") if c.strip()]
 
 
-def _with_flags(exc: InputError, flags: dict) -> InputError:
-    """A library error that begins with a Python parameter's name, reworded with the flag."""
-    for name, flag in flags.items():
-        if exc.message.startswith((name + " ", name + ":")):
-            return InputError(flag + exc.message[len(name):], exc.file, exc.line, exc.column)
-    return exc
-
-
-def _add_prevalence(sub):
+def _add_prevalence(sub, shared):
     from .defaults import PREVALENCE_INTERVALS as INTERVALS
-    p = sub.add_parser("prevalence", help="prevalence by group from pooled readouts (surveillance)",
+    p = sub.add_parser("prevalence", parents=[shared["json"], shared["report"]], help="prevalence by group from pooled readouts (surveillance)",
                        description="Estimate the prevalence (for example an infection rate per "
                        "1000) by group from pools of any sizes, with an interval, the "
                        "bias-corrected estimate and the minimum infection rate; without --assay "
@@ -1203,17 +911,10 @@ def _add_prevalence(sub):
                    help="estimate the difference between groups A and B (automatic when --by "
                    "names one column with exactly two values)")
     p.add_argument("--out", metavar="CSV", help="write the estimates table")
-    p.add_argument("--report", metavar="HTML", help="write an offline HTML report")
-    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
 
 
-PREVALENCE_FLAGS = {"level": "--level", "per": "--per", "prior": "--prior",
-                    "compare": "--compare", "interval": "--interval", "by": "--by"}
-
-
 def _run_prevalence(args):
-    from .io import write_frame
     from .surveillance import estimate_prevalence, pools_from_run, read_pools
     if args.pools and (args.layout or args.readouts or args.samples):
         raise InputError("give either --pools or --layout/--readouts, not both")
@@ -1221,46 +922,31 @@ def _run_prevalence(args):
         raise InputError("give --pools, or --layout and --readouts of a run")
     _check_outputs(args, out=args.out, report=args.report)
     inputs = [args.pools, args.layout, args.readouts, args.samples, args.assay]
-    assay = None
-    if args.assay:
-        from .assay import Assay
-        assay = Assay.read(args.assay)
+    assay = _read_assay(args.assay)
     if args.pools:
         data = read_pools(args.pools)
     else:
         from .run import Run
         data = pools_from_run(Run.read(args.layout, args.readouts, args.samples))
-    try:
-        result = estimate_prevalence(data, assay, by=args.by, interval=args.interval,
-                                     level=args.level, per=args.per, prior=args.prior,
-                                     compare=args.compare)
-    except InputError as exc:
-        raise _with_flags(exc, PREVALENCE_FLAGS) from None
+    result = estimate_prevalence(data, assay, by=args.by, interval=args.interval,
+                                 level=args.level, per=args.per, prior=args.prior,
+                                 compare=args.compare)
     if args.out:
-        write_frame(result.to_frame().reset_index(), args.out)
-    audit = _audit(args) if args.report or args.json else None
+        _write_table(result, args.out)
     if args.report:
-        from .report import write_report
-        write_report(args.report, prevalence=result, title="bayespool prevalence report",
-                     notes=[f"input: {v}" for v in inputs if v], audit=audit)
-    if args.json:
-        summary = result.summary()
-        summary["audit"] = audit.to_dict()
-        summary.update({k: v for k, v in (("out", args.out), ("report", args.report)) if v})
-        print(json.dumps(summary, indent=2))
-    else:
-        print(result)
-        written = [x for x in (args.out, args.report) if x]
-        if written:
-            print(f"wrote {' and '.join(written)}")
-        print(CAUTION)
+        _write_report(args, prevalence=result, title="bayespool prevalence report",
+                      notes=[f"input: {v}" for v in inputs if v])
+    written = [x for x in (args.out, args.report) if x]
+    _emit(args, result, extra={k: v for k, v in (("out", args.out), ("report", args.report)) if v},
+          text="\n".join([str(result)] + ([f"wrote {' and '.join(written)}"] if written else [])
+                         + [CAUTION]))
     return 0
 
 
 # ---- regress
-def _add_regress(sub):
+def _add_regress(sub, shared):
     from .defaults import REGRESSION_LINKS
-    p = sub.add_parser("regress", help="individual risk on covariates from pooled readouts "
+    p = sub.add_parser("regress", parents=[shared["json"], shared["seed"]], help="individual risk on covariates from pooled readouts "
                        "(group testing regression); fitted risks as priors",
                        description="Fit each specimen's risk on its covariates (columns of the "
                        "samples file) from pooled readouts of any layout, by maximum likelihood "
@@ -1283,43 +969,30 @@ def _add_regress(sub):
                    "(default: %(default)s, exact when every linked group has at most 22 samples)")
     p.add_argument("--level", type=_probability, default=0.95, metavar="L",
                    help="level of the coefficient intervals (default: %(default)s)")
-    p.add_argument("--seed", type=int, default=None, metavar="N",
-                   help="random seed of the Gibbs sampler (reproducible fits)")
     p.add_argument("--out", metavar="CSV", help="write the coefficients: "
                    "term,estimate,std_error,lower,upper")
     p.add_argument("--priors", metavar="CSV", help="write the samples file with a prior column "
                    "from the fitted risks (for decode, plan and design)")
-    p.add_argument("--json", action="store_true", help="print a machine-readable summary")
     return p
 
 
-REGRESS_FLAGS = {"formula": "--formula", "link": "--link", "method": "--method",
-                 "level": "--level", "max_iter": "--max-iter"}
-
-
 def _run_regress(args):
+    from .assay import PERFECT_ASSAY
     from .io import write_frame
     from .run import Run
     from .surveillance.regression import fit_regression
     _check_outputs(args, out=args.out, priors=args.priors)
-    assay = None
-    if args.assay:
-        from .assay import Assay
-        assay = Assay.read(args.assay)
+    assay = _read_assay(args.assay)
     run = Run.read(args.layout, args.readouts, args.samples)
-    run.sources["assay"] = args.assay
-    if assay is None:
-        from .assay import PERFECT_ASSAY
-        assay = PERFECT_ASSAY
+    run = run.with_sources(assay=args.assay)
     try:
-        fit = fit_regression(run, assay, formula=args.formula, link=args.link,
+        fit = fit_regression(run, assay or PERFECT_ASSAY, formula=args.formula, link=args.link,
                              method=args.method, level=args.level, seed=args.seed)
-    except InputError as exc:
-        if isinstance(exc, ImpossibleEvidenceError) and not args.assay:
-            raise InputError(exc.message + " (no --assay was given, so the test is taken as "
-                             "perfect; give the assay file)", exc.file, exc.line,
-                             exc.column) from None
-        raise _with_flags(exc, REGRESS_FLAGS) from None
+    except ImpossibleEvidenceError as exc:
+        if args.assay:
+            raise
+        raise InputError(exc.message + " (no --assay was given, so the test is taken as "
+                         "perfect; give the assay file)", exc.file, exc.line, exc.column) from None
     if args.out:
         write_frame(fit.coefficients(), args.out)
     if args.priors:
@@ -1328,18 +1001,12 @@ def _run_regress(args):
         _note(args, "no --assay given: the test is taken as perfect (Se = Sp = 1)")
     for n in fit.notes:
         _note(args, n)
-    if args.json:
-        summary = fit.summary()
-        summary["audit"] = _audit(args).to_dict()
-        summary["assay"] = assay.describe() if args.assay else "perfect (Se = Sp = 1)"
-        summary.update({k: v for k, v in (("out", args.out), ("priors", args.priors)) if v})
-        print(json.dumps(summary, indent=2))
-    else:
-        print(fit)
-        written = [x for x in (args.out, args.priors) if x]
-        if written:
-            print(f"wrote {' and '.join(written)}")
-        print(CAUTION)
+    written = [x for x in (args.out, args.priors) if x]
+    extra = {"assay": assay.describe() if assay else "perfect (Se = Sp = 1)"}
+    extra.update({k: v for k, v in (("out", args.out), ("priors", args.priors)) if v})
+    _emit(args, fit, extra=extra,
+          text="\n".join([str(fit)] + ([f"wrote {' and '.join(written)}"] if written else [])
+                         + [CAUTION]))
     return 0
 
 
@@ -1362,8 +1029,9 @@ def build_parser() -> argparse.ArgumentParser:
     from . import __version__
     parser.add_argument("--version", action="version", version=f"bayespool {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    shared = _shared_options()
     for add, _ in COMMANDS.values():
-        add(sub)
+        add(sub, shared)
     return parser
 
 

@@ -28,6 +28,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError
+from .result_protocol import Result
 from .io import Table, read_id_table, read_table
 from .results import parse_results
 from .wells import check_wells, parse_well
@@ -52,8 +53,8 @@ class RowSubset(Table):
         return self.base.error(message, None if row is None else int(self.rows[int(row)]), column)
 
 
-@dataclass
-class ControlCheck:
+@dataclass(repr=False)
+class ControlCheck(Result):
     """What the controls said: one row per control (``controls``), one per plate (``plates``),
     and the readouts left out (``dropped_pools``: pool ID -> readouts dropped)."""
 
@@ -77,18 +78,14 @@ class ControlCheck:
                 "readouts_left_out": int(sum(self.dropped_pools.values())),
                 "pools_left_out": sorted(self.dropped_pools), "messages": list(self.messages)}
 
-    def lines(self) -> list[str]:
-        out = []
-        for r in self.plates.itertuples():
-            out.append(f"plate {r.plate}: controls {r.status} ({r.detail})")
-        return out + self.messages
-
     def __str__(self) -> str:
-        return "\n".join(self.lines())
+        out = [f"plate {r.plate}: controls {r.status} ({r.detail})"
+               for r in self.plates.itertuples()]
+        return "\n".join(out + self.messages)
 
-    def __repr__(self) -> str:
-        return (f"ControlCheck(plates={len(self.plates)}, failed={len(self.failed_plates)}, "
-                f"readouts_left_out={sum(self.dropped_pools.values())})")
+    def _brief(self) -> str:
+        return (f"plates={len(self.plates)}, failed={len(self.failed_plates)}, "
+                f"readouts_left_out={sum(self.dropped_pools.values())}")
 
 
 def _kinds(table: Table, column: str, rows) -> np.ndarray:
@@ -268,7 +265,7 @@ def read_run(layout, readouts=None, samples=None, controls=None, *, prevalence=N
     """:meth:`bayespool.run.Run.read` with controls: returns ``(run, check)``; ``check`` is None
     when there are no controls (no controls file and no ``control`` column in the samples)."""
     from .defaults import PREVALENCE
-    from .run import Run
+    from .run import Run, input_sources
     prevalence = PREVALENCE if prevalence is None else prevalence
     sm = read_table(samples, ["sample"], "samples") if samples is not None else None
     ctl = _empty()
@@ -284,11 +281,10 @@ def read_run(layout, readouts=None, samples=None, controls=None, *, prevalence=N
     lay = read_id_table(layout, ("pool", "sample"), "layout")
     rd = read_table(readouts, ["pool", "result"], "readouts")
     kept, check = check_controls(lay, rd, sm, ctl, words=result_words)
-    run = Run.from_tables(lay, kept, sm, prevalence, words=result_words)
-    run.sources.update({"layout": str(layout), "readouts": str(readouts),
-                        "samples": None if samples is None else str(samples),
-                        "controls": None if controls is None else str(controls)})
-    run.notes = list(run.notes) + check.messages
+    sources = {**input_sources(layout, readouts, samples),
+               "controls": None if controls is None else str(controls)}
+    run = Run.from_tables(lay, kept, sm, prevalence, words=result_words, sources=sources,
+                          notes=check.messages)
     return run, check
 
 
@@ -301,7 +297,7 @@ def mark_specimens(posterior, run, check: ControlCheck) -> None:
     lost = np.zeros(run.n_samples, dtype=bool)
     for t in lost_pools:
         lost[run.members(t)] = True
-    read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
+    read = np.repeat(run.pool_read, run.pool_size)
     untested = np.bincount(run.pool_members[read], minlength=run.n_samples) == 0
     note = np.where(lost & untested, "untested: readouts left out (failed controls)",
                     np.where(lost, "some readouts left out (failed controls)", ""))

@@ -16,6 +16,7 @@ from .assay import Assay, DilutionSensitivity
 from .decoders import decode
 from .decoders.posterior import Posterior
 from .io import write_frame
+from .result_protocol import CAUTION, Result, file_frame
 from .run import Run
 
 DEMO_SEED = 20261201
@@ -66,8 +67,14 @@ def invented_run(seed: int = DEMO_SEED):
     return layout, readouts, samples, truth_frame
 
 
-@dataclass
-class DemoResult:
+@dataclass(repr=False)
+class DemoResult(Result):
+    """What the demo did: the posterior, the calibration and the plan, and the files it wrote.
+
+    ``to_frame()`` lists the files (index ``file``: validation, assay, layout, ...);
+    ``str()`` is what ``bayespool demo`` prints.
+    """
+
     folder: Path
     posterior: Posterior
     files: dict = field(default_factory=dict)
@@ -81,6 +88,35 @@ class DemoResult:
         decided = calls != "inconclusive"
         return {"decided": int(decided.sum()),
                 "correct": int((calls[decided] == truth[decided]).sum())}
+
+    def to_frame(self) -> pd.DataFrame:
+        return pd.DataFrame({"path": [str(p) for p in self.files.values()]},
+                            index=pd.Index(list(self.files), name="file"))
+
+    def summary(self) -> dict:
+        return {"folder": str(self.folder), "files": {k: str(v) for k, v in self.files.items()},
+                "posterior": self.posterior.summary(), "agreement": self.agreement(),
+                "next_tests": self.plan.n_tests if self.plan is not None else 0}
+
+    def __str__(self) -> str:
+        post, cal, nxt = self.posterior, self.calibration, self.plan
+        c = post.counts()
+        agree = self.agreement()
+        lines = ["bayespool demo: the whole job on an invented screening run (not real data)",
+                 f"  1. calibrated the assay from {cal.summary()['readouts']} invented validation "
+                 f"readouts: {cal.assay.describe()}",
+                 f"  2. decoded {post.n_samples} specimens by {post.method}: {c['positive']} "
+                 f"positive, {c['negative']} negative, {c['inconclusive']} inconclusive "
+                 f"(decided calls matching the invented truth: {agree['correct']} of "
+                 f"{agree['decided']})",
+                 f"  3. planned {nxt.n_tests} next test(s) for the inconclusive specimens",
+                 f"  4. wrote the report {self.files['report']}",
+                 f"  files in {self.folder}/:"]
+        lines += [f"    {name:<11} {path}" for name, path in self.files.items()]
+        return "\n".join(lines + ["  " + CAUTION])
+
+    def _brief(self) -> str:
+        return f"folder={str(self.folder)!r}, {len(self.files)} files"
 
 
 DEMO_NEXT_TESTS = 24  # a quarter plate of follow-up tests
@@ -120,11 +156,11 @@ def run_demo(folder: str | Path = "bayespool-demo", seed: int = DEMO_SEED) -> De
     run = Run.read(files["layout"], files["readouts"], files["samples"], prevalence=PREVALENCE)
     assay = Assay.read(files["assay"])
     posterior = decode(run, assay, method="auto")
-    write_frame(posterior.to_frame(), files["posterior"])
+    write_frame(file_frame(posterior.to_frame()), files["posterior"])
     next_tests = plan(run, assay, posterior=posterior, tests=DEMO_NEXT_TESTS, seed=seed)
-    write_frame(next_tests.to_frame(), files["next_pools"])
+    write_frame(file_frame(next_tests.to_frame()), files["next_pools"])
     write_report(files["report"], run=run, assay=assay, posterior=posterior,
-                 plan=next_tests.to_frame(), calibration=calibration,
+                 plan=next_tests, calibration=calibration,
                  title="bayespool demo run (invented data)",
                  notes=["All data of this run is invented for the demonstration; it is not real "
                         "and checks nothing."])

@@ -246,7 +246,7 @@ def check_model(run, assay, *, draws: int | None = None, seed=None) -> ModelChec
     ModelCheck
     """
     rng = np.random.default_rng(seed)
-    reads = (run.n_positive + run.n_negative).astype(np.int64)
+    reads = run.pool_reads.astype(np.int64)
     read = reads > 0
     size = run.pool_size.astype(np.int64)
     if not read.any():

@@ -24,7 +24,7 @@ def check_plate_size(value, name: str = "plate_size") -> int:
     except (TypeError, ValueError):
         size = None
     if size not in FORMATS:
-        raise InputError(f"{name} must be 96 or 384, got {value!r}")
+        raise InputError(f"`{name}` must be 96 or 384, got {value!r}")
     return size
 
 

@@ -7,35 +7,18 @@ nothing is dense. Replicate readouts of a pool are folded into counts of positiv
 from __future__ import annotations
 
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from types import MappingProxyType
 
 import numpy as np
 import pandas as pd
 
+from .csr import _COUNTING_SORT_FROM, CSR, CSRPart
 from .defaults import PREVALENCE
 from .io import CodedTable, FrameTable, Table, read_id_table, read_table
 from .results import parse_results, skipped_note
 from .validation import check_open_probability
-from .wells import check_wells
-
-_COUNTING_SORT_FROM = 1 << 16  # pairs; below this a NumPy sort is as fast and needs no numba
-
-
-def csr(rows: np.ndarray, cols: np.ndarray, n_rows: int):
-    """CSR (ptr, indices) of the pairs (rows[i], cols[i]), stable in input order within a row.
-
-    Large inputs take an O(n) counting sort (numba) instead of an O(n log n) stable argsort.
-    """
-    ptr = np.zeros(n_rows + 1, dtype=np.int64)
-    np.cumsum(np.bincount(rows, minlength=n_rows), out=ptr[1:])
-    if len(rows) < _COUNTING_SORT_FROM:
-        order = np.argsort(rows, kind="stable")
-        return ptr, cols[order].astype(np.int32, copy=False)
-    from .incidence import scatter_rows
-    out = np.empty(len(rows), dtype=np.int32)
-    scatter_rows(np.asarray(rows), np.asarray(cols), ptr, out)
-    return ptr, out
-
+from .samplesfile import check_samples
 
 def _first_repeated_pair(rows, cols, n_rows: int, n_cols: int) -> int:
     """Row of the first (pool, sample) pair that repeats an earlier one, or -1."""
@@ -50,8 +33,12 @@ def _first_repeated_pair(rows, cols, n_rows: int, n_cols: int) -> int:
 
 
 class PoolIncidence:
-    """Sizes of a set of pools over specimens held as ``sample_ids``, ``pool_ids`` and CSR
-    ``pool_ptr``/``pool_members``; shared by a run and a design."""
+    """Pools over specimens: ``sample_ids``, ``pool_ids`` and ``by_pool``, the :class:`CSR` of each
+    pool's members (``pool_ptr``/``pool_members`` are its arrays); shared by a run, a design and a
+    plan."""
+
+    pool_ptr = CSRPart("by_pool", "ptr")
+    pool_members = CSRPart("by_pool", "indices")
 
     @property
     def n_samples(self) -> int:
@@ -65,62 +52,91 @@ class PoolIncidence:
     def n_memberships(self) -> int:
         return len(self.pool_members)
 
-    @property
-    def pool_size(self) -> np.ndarray:
-        return np.diff(self.pool_ptr).astype(np.int64)
+    pool_size = CSRPart("by_pool", "sizes")  # members per pool (int64)
 
     def members(self, t: int) -> np.ndarray:
-        return self.pool_members[self.pool_ptr[t]:self.pool_ptr[t + 1]]
+        return self.by_pool.row(t)
 
 
-@dataclass(eq=False)
+@dataclass(eq=False, frozen=True)
 class Run(PoolIncidence):
-    """Specimens, pools and readouts of one batch.
+    """Specimens, pools and readouts of one batch; immutable once built.
 
-    ``pool_ptr``/``pool_members``: members of pool t are ``pool_members[pool_ptr[t]:pool_ptr[t+1]]``.
-    ``sample_ptr``/``sample_pools``: pools of sample i, likewise. ``n_positive``/``n_negative``:
+    ``by_pool``: members of each pool (:class:`CSR`; ``pool_ptr``/``pool_members`` are its arrays).
+    ``by_sample``: pools of each sample (``sample_ptr``/``sample_pools``). ``n_positive``/``n_negative``:
     readouts of each pool (replicates folded). ``prior``: P(x_i = 1) before the readouts.
+    ``sources`` (read-only mapping of input role -> file) and ``notes`` (tuple) describe where the
+    run came from. A changed run is a new one: :meth:`with_prior`, :meth:`with_readouts`,
+    :meth:`with_sources`, :meth:`with_notes` (or ``dataclasses.replace``).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> run.n_samples, run.n_pools
+    (288, 84)
+    >>> [str(s) for s in run.sample_ids[run.members(0)]][:2]
+    ['SW1-A1', 'SW1-B1']
     """
 
     sample_ids: np.ndarray
     pool_ids: np.ndarray
     prior: np.ndarray
-    pool_ptr: np.ndarray
-    pool_members: np.ndarray
-    sample_ptr: np.ndarray
-    sample_pools: np.ndarray
+    by_pool: CSR
+    by_sample: CSR
     n_positive: np.ndarray
     n_negative: np.ndarray
     samples: pd.DataFrame | None = None  # the samples file as read (plate, well, ...), if any
     readout_ct: pd.DataFrame | None = None  # pool, result, ct of each readout with a ct column
-    sources: dict = field(default_factory=dict)
-    notes: list = field(default_factory=list)
+    sources: MappingProxyType = field(default_factory=dict)
+    notes: tuple = ()
+
+    def __post_init__(self):
+        # the only writes: freezing the descriptive fields a caller may hand in as dict or list
+        object.__setattr__(self, "sources", MappingProxyType(dict(self.sources)))
+        object.__setattr__(self, "notes", tuple(self.notes))
 
     @property
     def n_readouts(self) -> int:
         return int(self.n_positive.sum() + self.n_negative.sum())
 
+    @property
+    def pool_reads(self) -> np.ndarray:
+        """Readouts of each pool, replicates counted (int32)."""
+        return self.n_positive + self.n_negative
+
+    @property
+    def pool_read(self) -> np.ndarray:
+        """Whether each pool has at least one readout (a pool never read adds no information)."""
+        return self.pool_reads > 0
+
+    sample_ptr = CSRPart("by_sample", "ptr")
+    sample_pools = CSRPart("by_sample", "indices")
+
     def pools_of(self, i: int) -> np.ndarray:
-        return self.sample_pools[self.sample_ptr[i]:self.sample_ptr[i + 1]]
+        return self.by_sample.row(i)
 
     def log_likelihood(self, assay):
         """Per-pool log L_t[d] as (ptr, values); see :meth:`bayespool.assay.Assay.log_likelihood`."""
         if assay.ct is not None:  # Ct readouts: likelihoods integrated over individual Cts
             from .ct_evidence import PoolCtStats, pool_log_likelihood
             return pool_log_likelihood(assay, self.pool_size, PoolCtStats.from_run(self, assay.ct))
-        tested = (self.n_positive + self.n_negative) > 0
-        assay.sensitivity.check_pool_sizes(self.pool_size[tested], self.sources.get("assay"))
+        assay.sensitivity.check_pool_sizes(self.pool_size[self.pool_read],
+                                           self.sources.get("assay"))
         return assay.log_likelihood(self.pool_size, self.n_positive, self.n_negative)
 
     # ---- construction
     @classmethod
     def from_arrays(cls, pool_of_membership, sample_of_membership, n_samples: int, n_pools: int,
-                    prior, readout_pool=None, readout_result=None, sample_ids=None, pool_ids=None):
+                    prior, readout_pool=None, readout_result=None, sample_ids=None, pool_ids=None,
+                    *, samples: pd.DataFrame | None = None, readout_ct: pd.DataFrame | None = None,
+                    sources=None, notes=()):
         """Build from integer codes (membership pairs; readouts as pool index and 0/1 result)."""
         pm = np.asarray(pool_of_membership, dtype=np.int64)
         sm = np.asarray(sample_of_membership, dtype=np.int64)
-        pool_ptr, pool_members = csr(pm, sm, n_pools)
-        sample_ptr, sample_pools = csr(sm, pm, n_samples)
+        by_pool = CSR.from_pairs(pm, sm, n_pools)
+        by_sample = CSR.from_pairs(sm, pm, n_samples)
         npos = np.zeros(n_pools, dtype=np.int32)
         nneg = np.zeros(n_pools, dtype=np.int32)
         if readout_pool is not None:
@@ -134,7 +150,8 @@ class Run(PoolIncidence):
         if pool_ids is None:
             pool_ids = np.array([f"P{t}" for t in range(n_pools)], dtype=object)
         return cls(np.asarray(sample_ids, dtype=object), np.asarray(pool_ids, dtype=object), prior,
-                   pool_ptr, pool_members, sample_ptr, sample_pools, npos, nneg)
+                   by_pool, by_sample, npos, nneg, samples,
+                   readout_ct, sources or {}, notes)
 
     @classmethod
     def read(cls, layout, readouts=None, samples=None, *, prevalence: float = PREVALENCE,
@@ -147,10 +164,8 @@ class Run(PoolIncidence):
         lay = read_id_table(layout, ("pool", "sample"), "layout")
         rd = read_table(readouts, ["pool", "result"], "readouts") if readouts is not None else None
         sm = read_table(samples, ["sample"], "samples") if samples is not None else None
-        run = cls.from_tables(lay, rd, sm, prevalence, words=result_words)
-        run.sources.update({"layout": str(layout), "readouts": None if readouts is None else
-                            str(readouts), "samples": None if samples is None else str(samples)})
-        return run
+        return cls.from_tables(lay, rd, sm, prevalence, words=result_words,
+                               sources=input_sources(layout, readouts, samples))
 
     @classmethod
     def from_frames(cls, layout: pd.DataFrame, readouts: pd.DataFrame | None = None,
@@ -166,7 +181,9 @@ class Run(PoolIncidence):
 
     @classmethod
     def from_tables(cls, lay: Table, rd: Table | None, sm: Table | None, prevalence, *,
-                    words: dict | None = None) -> "Run":
+                    words: dict | None = None, sources=None, notes=()) -> "Run":
+        """Build from read tables; ``sources`` and ``notes`` (added after the reading's own
+        notes) describe the run."""
         prevalence = check_open_probability(prevalence, "prevalence")
         # IDs are factorised once (a large plain file comes already coded); every later check
         # works on the integer codes
@@ -193,27 +210,15 @@ class Run(PoolIncidence):
         samples_frame = None
         if sm is not None:
             sf = sm.frame
-            blank = np.flatnonzero((sf["sample"] == "").to_numpy())
-            if len(blank):
-                raise sm.error("empty sample ID", blank[0], "sample")
-            dup = sf.duplicated(["sample"]).to_numpy()
-            if dup.any():
-                r = int(np.flatnonzero(dup)[0])
-                raise sm.error(f"sample {sf['sample'].iat[r]!r} is listed twice", r, "sample")
-            check_wells(sm)
+            prior_column = check_samples(sm)
             extra = ~pd.Index(sf["sample"]).isin(pd.Index(sample_ids))
             if extra.any():
                 sample_ids = np.concatenate([sample_ids, sf["sample"].to_numpy()[extra]])
             index = pd.Index(sample_ids)
             pos = index.get_indexer(sf["sample"])
             prior_values = np.full(len(sample_ids), prevalence)
-            if "prior" in sf.columns:
-                vals, given = sm.numbers("prior")
-                bad = given & ~((vals > 0) & (vals < 1))
-                if bad.any():
-                    r = int(np.flatnonzero(bad)[0])
-                    raise sm.error(f"prior {sf['prior'].iat[r].strip()!r} must be a probability "
-                                   "strictly between 0 and 1", r, "prior")
+            if prior_column is not None:
+                vals, given = prior_column
                 prior_values[pos[given]] = vals[given]
             samples_frame = sf.copy()
             samples_frame.index = pos
@@ -224,10 +229,10 @@ class Run(PoolIncidence):
 
         readout_pool = readout_result = None
         ct_frame = None
-        notes = []
+        read_notes = []
         if sm is not None and extra.any():
-            notes.append(f"{n_extra} sample(s) of the samples file are in no pool; "
-                         "their probability stays at the prior")
+            read_notes.append(f"{n_extra} sample(s) of the samples file are in no pool; "
+                              "their probability stays at the prior")
         if rd is not None:
             rf = rd.frame
             res = parse_results(rd, words=words)
@@ -240,7 +245,7 @@ class Run(PoolIncidence):
             skipped = skipped_note(rd, res)
             if skipped:
                 warnings.warn(skipped, stacklevel=2)
-                notes.append(skipped)
+                read_notes.append(skipped)
             keep = res >= 0
             readout_pool, readout_result = pidx[keep], res[keep]
             if "ct" in rf.columns:
@@ -254,27 +259,50 @@ class Run(PoolIncidence):
                 if len(odd):
                     lines = ", ".join(map(str, rd.lines(odd[:10])))
                     more = f" and {len(odd) - 10} more" if len(odd) > 10 else ""
-                    notes.append(f"{rd.path}: {len(odd)} negative readout(s) carry a Ct value "
-                                 f"({rd.unit}{'s' if len(odd) > 1 else ''} {lines}{more}); they are "
-                                 "read as negative: check the result or the Ct")
+                    read_notes.append(
+                        f"{rd.path}: {len(odd)} negative readout(s) carry a Ct value "
+                        f"({rd.unit}{'s' if len(odd) > 1 else ''} {lines}{more}); they are "
+                        "read as negative: check the result or the Ct")
                 ct_frame = pd.DataFrame({"pool": pidx[keep], "result": res[keep],
                                          "ct": vals[keep]})
-        run = cls.from_arrays(pool_codes, sample_codes, n, len(pool_ids), prior, readout_pool,
-                              readout_result, sample_ids, pool_ids)
-        run.samples = samples_frame
-        run.readout_ct = ct_frame
-        run.notes = notes
-        return run
+        return cls.from_arrays(pool_codes, sample_codes, n, len(pool_ids), prior, readout_pool,
+                               readout_result, sample_ids, pool_ids, samples=samples_frame,
+                               readout_ct=ct_frame, sources=sources, notes=read_notes + list(notes))
 
-    def with_readouts(self, readout_pool, readout_result) -> "Run":
-        """A copy with more readouts (pool indices, 0/1 results) folded in."""
+    # ---- changed copies (a Run is never modified in place)
+    def with_readouts(self, readout_pool, readout_result, ct=None) -> "Run":
+        """A copy with more readouts (pool indices, 0/1 results) folded in; ``ct`` (one value per
+        readout, NaN for none) extends ``readout_ct``."""
         rp = np.asarray(readout_pool, dtype=np.int64)
         rr = np.asarray(readout_result, dtype=np.int64)
         npos = self.n_positive + np.bincount(rp[rr == 1], minlength=self.n_pools).astype(np.int32)
         nneg = self.n_negative + np.bincount(rp[rr == 0], minlength=self.n_pools).astype(np.int32)
-        return Run(self.sample_ids, self.pool_ids, self.prior, self.pool_ptr, self.pool_members,
-                   self.sample_ptr, self.sample_pools, npos, nneg, self.samples, self.readout_ct,
-                   dict(self.sources), list(self.notes))
+        return replace(self, n_positive=npos, n_negative=nneg,
+                       readout_ct=self.more_ct(rp, rr, ct))
+
+    def more_ct(self, readout_pool, readout_result, ct) -> pd.DataFrame | None:
+        """``readout_ct`` with these readouts (pool index, 0/1 result, Ct) appended; unchanged
+        when ``ct`` is None."""
+        if ct is None:
+            return self.readout_ct
+        new = pd.DataFrame({"pool": np.asarray(readout_pool, dtype=np.int64),
+                            "result": np.asarray(readout_result, dtype=np.int64),
+                            "ct": np.asarray(ct, dtype=float)})
+        return new if self.readout_ct is None else pd.concat([self.readout_ct, new],
+                                                             ignore_index=True)
+
+    def with_prior(self, prior) -> "Run":
+        """A copy whose specimens have the prior ``prior`` (one value or one per specimen)."""
+        prior = np.broadcast_to(np.asarray(prior, dtype=float), (self.n_samples,)).copy()
+        return replace(self, prior=prior)
+
+    def with_sources(self, **sources) -> "Run":
+        """A copy whose ``sources`` also name these inputs (role=path; None for none)."""
+        return replace(self, sources={**self.sources, **sources})
+
+    def with_notes(self, notes) -> "Run":
+        """A copy with ``notes`` added after its own."""
+        return replace(self, notes=self.notes + tuple(notes))
 
     def sample_column(self, name: str) -> np.ndarray | None:
         """A column of the samples file aligned with ``sample_ids`` (blank for specimens it does
@@ -291,6 +319,12 @@ class Run(PoolIncidence):
         """The layout as a DataFrame (pool, sample), one row per membership."""
         owner = np.repeat(np.arange(self.n_pools), self.pool_size)
         return pd.DataFrame({"pool": self.pool_ids[owner], "sample": self.sample_ids[self.pool_members]})
+
+
+def input_sources(layout, readouts=None, samples=None) -> dict:
+    """The ``sources`` of a run read from these files (role -> path as given, None if absent)."""
+    return {"layout": str(layout), "readouts": None if readouts is None else str(readouts),
+            "samples": None if samples is None else str(samples)}
 
 
 def read_run(layout, readouts=None, samples=None, *, prevalence: float = PREVALENCE,
@@ -320,5 +354,18 @@ def read_run(layout, readouts=None, samples=None, *, prevalence: float = PREVALE
     ------
     InputError
         A bad file (naming file, line and column) or a bad ``prevalence``.
+
+    References
+    ----------
+    The file formats: RFC 4180 (comma-separated values), with ``;`` or tab delimiters and
+    ``.xlsx`` sheets accepted as well.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> run.n_samples, run.n_pools, run.n_readouts
+    (288, 84, 84)
     """
     return Run.read(layout, readouts, samples, prevalence=prevalence, result_words=result_words)

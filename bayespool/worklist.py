@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError
+from .result_protocol import Result, membership_index
 from .plates import FORMATS, check_plate_size, fill_order, parse_well, plate_positions, well_name
 
 COLUMNS = ["source_plate", "source_well", "destination_plate", "destination_well", "volume_ul",
@@ -27,8 +28,8 @@ DEFAULT_POOL_VOLUME = 200.0
 DEFAULT_PREFIX = "POOLS"
 
 
-@dataclass
-class Worklist:
+@dataclass(repr=False)
+class Worklist(Result):
     """The transfers (``frame``, :data:`COLUMNS`), the destination plates (plate -> {well: pool}),
     and, when the samples gave volumes, each specimen's volume before and after (``volumes``)."""
 
@@ -40,7 +41,8 @@ class Worklist:
     notes: list = field(default_factory=list)
 
     def to_frame(self) -> pd.DataFrame:
-        return self.frame
+        """The transfers, one row per membership (index ``membership``)."""
+        return self.frame.set_axis(membership_index(len(self.frame)))
 
     @property
     def n_pools(self) -> int:
@@ -59,7 +61,7 @@ class Worklist:
             out["volumes"] = vol.to_dict("records")
         return out
 
-    def lines(self) -> list[str]:
+    def __str__(self) -> str:
         s = self.summary()
         out = [f"worklist: {s['transfers']} transfers into {s['pools']} pools of "
                f"{self.pool_volume:g} uL on {len(self.destinations)} destination plate(s) of "
@@ -68,23 +70,20 @@ class Worklist:
             low = s["least_volume_left"]
             out.append(f"  least volume left: {low['left_ul']:.4g} uL ({low['sample']})")
         out += [f"  note: {n}" for n in self.notes]
-        return out
+        return "\n".join(out)
 
-    def __str__(self) -> str:
-        return "\n".join(self.lines())
-
-    def __repr__(self) -> str:
-        return (f"Worklist(transfers={len(self.frame)}, pools={self.n_pools}, "
-                f"pool_volume={self.pool_volume:g})")
+    def _brief(self) -> str:
+        return (f"transfers={len(self.frame)}, pools={self.n_pools}, "
+                f"pool_volume={self.pool_volume:g}")
 
 
 def _positive_volume(value, name: str) -> float:
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise InputError(f"{name} must be a number of microlitres, got {value!r}") from None
+        raise InputError(f"`{name}` must be a number of microlitres, got {value!r}") from None
     if not np.isfinite(v) or v <= 0:
-        raise InputError(f"{name} must be a positive number of microlitres, got {value!r}")
+        raise InputError(f"`{name}` must be a positive number of microlitres, got {value!r}")
     return v
 
 
@@ -124,10 +123,10 @@ def build_worklist(layout: pd.DataFrame, samples: pd.DataFrame, *,
         Pools that need no transfer (a replicate reading of a mix already made).
     """
     pool_volume = _positive_volume(pool_volume, "pool_volume")
-    plate_size = check_plate_size(plate_size, "destination_plate_size")
+    plate_size = check_plate_size(plate_size, "plate_size")
     prefix = str(prefix).strip()
     if not prefix:
-        raise InputError("destination_prefix must not be empty")
+        raise InputError("`prefix` must not be empty")
     for col in ("pool", "sample"):
         if col not in layout.columns:
             raise InputError(f"the layout needs a {col!r} column")

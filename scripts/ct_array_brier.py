@@ -14,6 +14,7 @@ crossings of amplified rows and columns (where the binary readouts cannot tell t
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import time
 
 import numpy as np
@@ -74,8 +75,7 @@ def study(runs: int, seed: int, sweeps: int) -> dict:
         truth = np.isfinite(truth_ct).astype(float)
         run, rd = array_run(truth_ct, rng, assay, prevalence)
         order = np.argsort(run.sample_ids.astype(str))  # S00..S95 in array order
-        plain = run.with_readouts([], [])
-        plain.readout_ct = None
+        plain = dataclasses.replace(run, readout_ct=None)
         p_bin = decode(plain, binary, method="gibbs", seed=1).probability[order]
         t0 = time.perf_counter()
         lp, ll = run.log_likelihood(assay)

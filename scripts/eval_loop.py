@@ -83,7 +83,7 @@ def table(n, runs, seed, prevalences=(0.005, 0.01, 0.02, 0.05), array_runs=2000,
                         f"{dorf['tests']:.4f} | {dorf['sensitivity']:.4f} | "
                         f"{dorf['specificity']:.4f} |")
             arr = simulate("array", 960, prevalence=p, assay=assay, runs=array_runs,
-                           seed=seed).to_dict()
+                           seed=seed).summary()
             rows.append(f"| {name} | {p:g} | array 8 x 12 (simulated) | "
                         f"{arr['tests_per_sample']:.4f} | {arr['sensitivity']:.4f} | "
                         f"{arr['specificity']:.5f} |")

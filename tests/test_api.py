@@ -18,7 +18,7 @@ ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "datasets" / "demo"
 
 FUNCTIONS = ("read_run", "read_assay", "decode", "plan", "calibrate", "make_design",
-             "optimal_dorfman", "simulate", "sweep", "write_report")
+             "optimal_dorfman", "simulate", "sweep", "write_report", "assay_curve")
 
 
 def _import_every_submodule():
@@ -70,7 +70,8 @@ def test_options_are_keyword_only(name):
                "decode": ["run", "assay"], "plan": ["run", "assay"],
                "calibrate": ["validation", "run"], "make_design": ["scheme", "samples"],
                "optimal_dorfman": ["prevalence", "assay"], "simulate": ["scheme", "samples"],
-               "sweep": ["scheme", "samples"], "write_report": ["path"]}
+               "sweep": ["scheme", "samples"], "write_report": ["path"],
+               "assay_curve": ["assay"]}
     assert positional == allowed[name]
 
 
@@ -123,7 +124,31 @@ LIBRARY_CASES = [
     (lambda r, a: bayespool.simulate("dorfman", 20, prevalence=2.0, pool_size=4), "prevalence"),
     (lambda r, a: bayespool.simulate("dorfman", 20, prevalence=0.1, pool_size=4, seed="x"),
      "seed"),
+    (lambda r, a: bayespool.estimate_prevalence(_pools(), level=2), "level"),
+    (lambda r, a: bayespool.estimate_prevalence(_pools(), per=-5), "per"),
+    (lambda r, a: bayespool.estimate_prevalence(_pools(), interval="magic"), "interval"),
+    (lambda r, a: bayespool.estimate_prevalence(_pools(), interval="bayes", prior=(0, 1)),
+     "prior"),
+    (lambda r, a: bayespool.estimate_prevalence(_pools(), by=["site", "site"]), "by"),
+    (lambda r, a: bayespool.fit_regression(r, a, formula=""), "formula"),
+    (lambda r, a: bayespool.fit_regression(r, a, formula="1", link="magic"), "link"),
+    (lambda r, a: _worklist(pool_volume=-1), "pool_volume"),
+    (lambda r, a: _worklist(prefix=" "), "prefix"),
+    (lambda r, a: _worklist(plate_size=100), "plate_size"),
 ]
+
+
+def _pools():
+    return bayespool.read_pools(ROOT / "datasets" / "surveillance" / "pools.csv")
+
+
+def _worklist(**options):
+    import pandas as pd
+
+    from bayespool.worklist import build_worklist
+    layout = pd.DataFrame({"pool": ["P1", "P1"], "sample": ["S1", "S2"]})
+    samples = pd.DataFrame({"sample": ["S1", "S2"], "plate": ["A", "A"], "well": ["A1", "B1"]})
+    return build_worklist(layout, samples, **options)
 
 
 @pytest.mark.parametrize("call,parameter", LIBRARY_CASES)
@@ -238,7 +263,8 @@ def test_posterior_by_specimen_id(demo):
     frame = post.to_frame()
     sid = str(run.sample_ids[7])
     row = post[sid]
-    got = frame[frame["sample"] == sid].iloc[0]
+    assert frame.index.name == "sample"
+    got = frame.loc[sid]
     assert row["probability"] == got["probability"] and row["call"] == got["call"]
     assert sid in post and "no such specimen" not in post
     with pytest.raises(KeyError):

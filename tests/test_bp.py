@@ -246,9 +246,9 @@ def test_auto_decodes_small_groups_exactly_and_large_ones_by_bp():
     pool_of = np.concatenate([np.repeat(np.arange(big.n_pools), big.pool_size),
                               big.n_pools + np.repeat(np.arange(small.n_pools), small.pool_size)])
     sample_of = np.concatenate([big.pool_members, big.n_samples + small.pool_members])
-    rp = np.concatenate([np.repeat(np.arange(big.n_pools), big.n_positive + big.n_negative),
+    rp = np.concatenate([np.repeat(np.arange(big.n_pools), big.pool_reads),
                          big.n_pools + np.repeat(np.arange(small.n_pools),
-                                                 small.n_positive + small.n_negative)])
+                                                 small.pool_reads)])
     rr = np.concatenate([np.concatenate([[1] * a + [0] * b for a, b in
                                          zip(big.n_positive, big.n_negative)]),
                          np.concatenate([[1] * a + [0] * b for a, b in

@@ -72,7 +72,7 @@ def test_no_fallback_for_an_explicit_bp_or_a_converged_run(sampler_module):
 
 def test_without_the_sampler_there_is_no_fallback_and_a_loud_warning(monkeypatch):
     import bayespool.decoders as decode_module
-    monkeypatch.setattr(decode_module.importlib.util, "find_spec", lambda name: None)
+    monkeypatch.setattr(decode_module, "fallback_decoder", lambda method, part: None)
     assay = ASSAYS["constant"]
     run = loopy_run(np.random.default_rng(2), assay, n=16, k=4, prevalence=0.2)
     post = decode(run, assay, method="auto", exact_limit=4, max_sweeps=1)

@@ -77,7 +77,7 @@ def test_ids_keep_first_appearance_order(tmp_path):
 
 
 def test_counting_sort_csr_matches_a_stable_argsort():
-    from bayespool.run import csr
+    from bayespool.csr import csr
     rng = np.random.default_rng(0)
     rows = rng.integers(0, 5000, 200_000)
     cols = rng.integers(0, 1 << 30, 200_000)

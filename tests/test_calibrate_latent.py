@@ -143,7 +143,7 @@ def test_identifiable_design_has_no_warning_and_fixing_helps():
     assert res.identifiable, res.warnings
     lo, hi = res.interval("prevalence")
     assert lo <= 0.06 <= hi
-    assert res.to_frame().set_index("parameter").loc["specificity", "fixed"]
+    assert res.to_frame().loc["specificity", "fixed"]
 
 
 def test_latent_assay_file_round_trips(tmp_path):

@@ -60,7 +60,7 @@ def test_failing_negative_control_invalidates_its_plate(tmp_path):
     assert check.failed_plates == ["NEXT2"]
     assert "negative control" in check.plates.set_index("plate").loc["NEXT2", "detail"]
     assert sorted(check.dropped_pools) == ["P3", "P4"]
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     assert dict(zip(run.pool_ids, read)) == {"P1": True, "P2": True, "P3": False, "P4": False}
     assert any("plate NEXT2 is invalid" in m for m in run.notes)
 

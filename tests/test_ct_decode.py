@@ -133,7 +133,7 @@ def test_exact_ct_against_brute_force(assay, case):
     run = make_run(pools, readouts, prior)
     post = decode(run, assay, method="exact")
     want, want_ct = brute_force(assay, pools, readouts, prior)
-    frame = post.to_frame().set_index("sample")
+    frame = post.to_frame()
     for s, p in want.items():
         assert frame.loc[s, "probability"] == pytest.approx(p, abs=2e-4), s
         if p > 0.05 and not np.isnan(frame.loc[s, "ct_mean"]):
@@ -145,12 +145,12 @@ def test_ct_separates_array_crossings(assay):
     # the binary reading cannot tell the diagonal from the anti-diagonal; matching Cts can
     pools, readouts, prior = CASES["array"]
     run = make_run(pools, readouts, prior)
-    p = decode(run, assay, method="exact").to_frame().set_index("sample")["probability"]
+    p = decode(run, assay, method="exact").to_frame()["probability"]
     assert p["a"] > 0.9 and p["d"] > 0.9 and p["b"] < 0.1 and p["c"] < 0.1
     binary = Assay.from_dict({"specificity": 0.99, "sensitivity": {"model": "constant",
                                                                    "value": 0.97}})
     plain = make_run(pools, [(q, r, "") for q, r, _ in readouts], prior)
-    pb = decode(plain, binary, method="exact").to_frame().set_index("sample")["probability"]
+    pb = decode(plain, binary, method="exact").to_frame()["probability"]
     assert pb["a"] == pytest.approx(pb["b"], abs=1e-9)
 
 
@@ -187,8 +187,8 @@ def test_ct_sampler_against_exact(assay, case):
     post = decode(run, assay, method="gibbs", seed=3)
     np.testing.assert_allclose(post.probability, exact.probability, atol=0.015)
     assert post.diagnostics["gibbs"]["max_rhat"] <= 1.05  # rare 0/1 draws: rank R-hat is noisy
-    a = exact.to_frame().set_index("sample")
-    b = post.to_frame().set_index("sample")
+    a = exact.to_frame()
+    b = post.to_frame()
     sure = a["probability"] > 0.5
     np.testing.assert_allclose(b.loc[sure, "ct_mean"], a.loc[sure, "ct_mean"], atol=0.15)
 
@@ -202,7 +202,7 @@ def test_auto_sends_a_shared_array_to_the_ct_sampler(assay):
     readouts[4 + 2] = ("C2", "positive", "26.9")
     post = decode(make_run(pools, readouts, 0.02), assay, method="auto", seed=2)
     assert post.diagnostics["decoders"] == {"gibbs": {"components": 1, "samples": 24}}
-    frame = post.to_frame().set_index("sample")
+    frame = post.to_frame()
     assert frame.loc["S12", "probability"] > 0.99
     # pooled Cts 27.5 (row of 6) and 26.9 (column of 4): individual Ct near 25
     assert 24.0 < frame.loc["S12", "ct_mean"] < 26.0

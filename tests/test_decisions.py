@@ -164,7 +164,7 @@ def test_untested_specimens_are_untested_at_every_prevalence(prevalence):
     for rule in ({}, {"target_sensitivity": 0.9, "max_false_discovery": 0.2},
                  {"negative_below": 0.5, "positive_above": 0.6}):
         post = decode(run, NOISY, **rule)
-        frame = post.to_frame().set_index("sample")
+        frame = post.to_frame()
         for s in ("s3", "s4"):
             assert frame.loc[s, "call"] == "untested"
             assert frame.loc[s, "call_rule"] == "no-readout"

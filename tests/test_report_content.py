@@ -1,6 +1,7 @@
 """The report's content: the demo report holds the numbers of the posterior CSV, each section
 renders from what it is given, plates of 96 and 384 wells, and the page is self-contained."""
 import base64
+import dataclasses
 import hashlib
 import re
 from types import SimpleNamespace
@@ -216,7 +217,7 @@ def test_plate_map_lists_specimens_it_cannot_place():
     # still carry them, and the map lists what it cannot place
     wells = ["A1", "A2", "A2", "Z9", "", "B01", "C3", "C4", "C5", "C6", "C7", "C8"]
     run = small_run()
-    run.samples = pd.DataFrame({"sample": run.sample_ids, "well": wells})
+    run = dataclasses.replace(run, samples=pd.DataFrame({"sample": run.sample_ids, "well": wells}))
     post = decode(run, ASSAY)
     _, dom = report_dom(run=run, posterior=post)
     pm = dom.by_id("plate-map")

@@ -5,6 +5,8 @@ The page is read back with an HTML tokenizer (html.parser, the same tokenisation
 browser, WHATWG HTML): no element or attribute that a hostile string tried to inject may exist, and
 each string must read back as the very same text. The browser test repeats this in Chromium.
 """
+import dataclasses
+
 import pandas as pd
 import pytest
 
@@ -50,9 +52,9 @@ def hostile_run(wells: bool):
         samples["plate"] = HOSTILE[1]
         samples["well"] = [f"A{i + 1}" for i in range(len(ids))]
     run = Run.from_frames(pd.DataFrame(lay), pd.DataFrame(rd), samples, prevalence=0.05)
-    run.sources = {"layout": HOSTILE[0] + ".csv", "readouts": HOSTILE[1] + ".csv"}
-    run.notes.append(HOSTILE[3])
-    return run
+    return dataclasses.replace(run, sources={"layout": HOSTILE[0] + ".csv",
+                                             "readouts": HOSTILE[1] + ".csv"},
+                               notes=run.notes + (HOSTILE[3],))
 
 
 class Fit:

@@ -48,6 +48,25 @@ def calibrate(validation=None, run=None, *, model: str = "best", fixed: dict | N
     Returns
     -------
     Calibration
+
+    Raises
+    ------
+    InputError
+        Neither or both of ``validation`` and ``run``, a bad option (naming the parameter), or a
+        bad file.
+
+    References
+    ----------
+    Maximum likelihood with profile-likelihood intervals; Clopper & Pearson (1934), Biometrika 26
+    (exact interval of the specificity); Hui & Walter (1980), Biometrics 36 (latent truth and its
+    identifiability); Hwang (1976), Biometrika 63(3) (the dilution effect).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> fit = bayespool.calibrate("datasets/demo/invented_validation.csv", model="dilution")
+    >>> fit.to_frame().index.tolist()
+    ['specificity', 'se_max', 'r50', 'slope']
     """
     from ..errors import InputError
     if (validation is None) == (run is None):

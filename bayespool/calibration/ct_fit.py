@@ -24,16 +24,21 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
+import pandas as pd
 from scipy import optimize, stats
 
 from ..errors import InputError
+from ..result_protocol import Result
 
 Z95 = stats.norm.ppf(0.975)
 
 
-@dataclass(eq=False)
-class CtCalibration:
-    """The fitted Ct assay and what the fit knows about itself."""
+@dataclass(eq=False, repr=False)
+class CtCalibration(Result):
+    """The fitted Ct assay and what the fit knows about itself.
+
+    ``to_frame()`` has one row per parameter (index ``parameter``): estimate, low, high.
+    """
 
     assay: object
     estimates: dict          # name -> (estimate, low, high)
@@ -50,7 +55,14 @@ class CtCalibration:
                 "mixture_selection": "BIC", "bic": {str(k): v for k, v in self.bic.items()},
                 "assay": self.assay.describe(), "warnings": list(self.warnings)}
 
-    def text(self) -> str:
+    def to_frame(self) -> pd.DataFrame:
+        return pd.DataFrame([(k, *v) for k, v in self.estimates.items()],
+                            columns=["parameter", "estimate", "low", "high"]).set_index("parameter")
+
+    def _brief(self) -> str:
+        return f"{self.readouts} readouts, {self.components} mixture component(s)"
+
+    def __str__(self) -> str:
         lines = [f"Ct model fitted from {self.readouts} validation readouts (95 % intervals: "
                  "Wald for the load model, Clopper-Pearson for the specificity)"]
         for k, (est, lo, hi) in self.estimates.items():

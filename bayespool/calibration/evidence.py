@@ -60,7 +60,7 @@ class Evidence:
     def __init__(self, run: Run):
         self.run = run
         self.comps = comps = components(run)
-        read = (run.n_positive + run.n_negative) > 0
+        read = run.pool_read
         size = run.pool_size
         groups: dict[int, list[tuple[int, np.ndarray]]] = {}
         exact = []

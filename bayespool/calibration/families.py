@@ -16,7 +16,8 @@ import numpy as np
 from numba import njit
 from scipy.special import expit, logit
 
-from ..assay import ConstantSensitivity, DilutionSensitivity, Sensitivity, TableSensitivity
+from ..assay import (ConstantSensitivity, DilutionSensitivity, Sensitivity, TableSensitivity,
+                     dilution_point, table_entry)
 from ..errors import InputError
 
 LOGIT_BOUND = 23.0         # |logit| above this is treated as the boundary 0 or 1
@@ -33,8 +34,8 @@ def _expit(x):
 def sens_eval(code, u, log_r, entry, se, rest, jac):
     """Fill Se, 1 - Se and dSe/du (cells x parameters) for one family on the unconstrained scale.
 
-    constant: Se = expit(u0). dilution: Se = expit(a) expit(-z), z = exp(beta) (log r - c), with
-    (a, c, beta) = (logit se_max, log r50, log slope). table: Se = expit(u[entry]).
+    constant: Se = expit(u0). dilution: the assay's :func:`~bayespool.assay.dilution_point` with
+    (logit se_max, log r50, log slope) = u. table: Se = expit(u[entry]).
     """
     n = len(log_r)
     jac[:, :] = 0.0
@@ -48,10 +49,7 @@ def sens_eval(code, u, log_r, entry, se, rest, jac):
         s, s_rest = _expit(u[0]), _expit(-u[0])
         b = np.exp(u[2])
         for i in range(n):
-            z = b * (log_r[i] - u[1])
-            fall, keep = _expit(z), _expit(-z)
-            se[i] = s * keep
-            rest[i] = s_rest + s * fall   # 1 - Se without cancellation
+            se[i], rest[i], fall, z = dilution_point(log_r[i], s, s_rest, u[1], b)
             jac[i, 0] = se[i] * s_rest
             jac[i, 1] = se[i] * fall * b
             jac[i, 2] = -se[i] * fall * z
@@ -202,19 +200,12 @@ class TableFamily(Family):
         return [probability(f"se[{k},{d}]") for k, d in self.entries]
 
     def entry_of(self, k, d) -> np.ndarray:
-        """Index of the entry that holds for each (k, d): the largest entry count <= d."""
+        """Index of the entry that holds for each (k, d) (:func:`bayespool.assay.table_entry`)."""
         k = np.asarray(k, np.int64)
-        d = np.asarray(d, np.int64)
-        out = np.full(len(k), -1, dtype=np.int64)
-        for size in np.unique(k):
-            rows = sorted((e[1], i) for i, e in enumerate(self.entries) if e[0] == size)
-            if not rows:
-                raise InputError(f"the sensitivity table has no entry for pool size {int(size)}")
-            counts = np.array([r[0] for r in rows])
-            idx = np.array([r[1] for r in rows])
-            sel = k == size
-            pos = np.searchsorted(counts, d[sel], side="right") - 1
-            out[sel] = idx[np.maximum(pos, 0)]
+        out = table_entry(self.entries, k, d)
+        if (out < 0).any():
+            size = int(np.min(k[out < 0]))
+            raise InputError(f"the sensitivity table has no entry for pool size {size}")
         return out
 
     def kernel_inputs(self, k, d):

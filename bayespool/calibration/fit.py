@@ -98,8 +98,8 @@ def fit_sensitivity(cells: Cells, model="dilution", fixed: dict | None = None,
             shown = ", ".join(f"{v:g}" for v in levels)
             raise InputError(f"the dilution model has {space.n_free} free sensitivity parameters "
                              f"but the data cover only {len(levels)} distinct dilution(s) k/d "
-                             f"({shown}); add pool sizes or positives, fix se_max "
-                             "(--fix se_max=1), or use the constant or table model", source)
+                             f"({shown}); add pool sizes or positives, fix se_max at 1 "
+                             '(`fixed["se_max"]`), or use the constant or table model', source)
     objective = CellLikelihood(fam, space, cells)
     if starts is None:
         starts = [space.free_from_natural({**s, **space.fixed})

@@ -14,6 +14,7 @@ import pandas as pd
 from scipy.special import xlogy
 from scipy.stats import chi2
 
+from ..progress import progress_bar
 from .intervals import clopper_pearson
 from .validation import Cells
 
@@ -71,15 +72,16 @@ def bootstrap_p_value(cells: Cells, fitted, observed_deviance: float, refit, dra
                       rng) -> float:
     """Parametric bootstrap p-value of the deviance: simulate every cell from the fitted rates,
     refit (``refit(detected) -> fitted rates``) and count simulated deviances >= the observed."""
-    import sys
-
-    from tqdm import tqdm
     p = np.asarray(fitted, dtype=float)
     n = cells.trials.astype(np.int64)
     exceed = 0
-    for _ in tqdm(range(int(draws)), desc="bootstrap", leave=False,
-                  disable=not sys.stderr.isatty()):
-        x = rng.binomial(n, p).astype(float)
-        dev = deviance_terms(n, x, refit(x)).sum()
-        exceed += dev >= observed_deviance - 1e-9
+    bar = progress_bar(None, int(draws), desc="bootstrap", unit="draw")
+    try:
+        for _ in range(int(draws)):
+            x = rng.binomial(n, p).astype(float)
+            dev = deviance_terms(n, x, refit(x)).sum()
+            exceed += dev >= observed_deviance - 1e-9
+            bar.update(1)
+    finally:
+        bar.close()
     return float((1 + exceed) / (draws + 1))

@@ -77,7 +77,7 @@ def design_reasons(run, read: np.ndarray, fam: Family, space: Space) -> list[str
     owner = np.repeat(read, run.pool_size)
     reads_per_specimen = np.bincount(run.pool_members[owner], minlength=run.n_samples)
     if reads_per_specimen.max(initial=0) <= 1:
-        reps = (run.n_positive + run.n_negative)[read]
+        reps = run.pool_reads[read]
         rates = sum(int(reps[sizes == k].max()) for k in np.unique(sizes))
         if rates < n_free:
             single = "no individual tests and " if not (sizes == 1).any() else ""

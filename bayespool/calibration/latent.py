@@ -116,7 +116,7 @@ def calibrate_runs(run: Run, model: str = "best", fixed: dict | None = None,
     groups of specimens linked through shared pools must stay within the exact decoder's limit.
     """
     level = check_options(model, level, intervals)
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     if not read.any():
         raise InputError("the readouts hold no readout of any pool: nothing to fit",
                          run.sources.get("readouts"))

@@ -3,7 +3,7 @@
 A :class:`Calibration` is data. ``assay`` is what ``bayespool decode`` and ``plan`` read (its
 ``details`` become the ``[fit]`` table of the assay file); ``to_frame()`` is the parameter table;
 ``cells`` compares observed and fitted detection rates; ``summary()`` is the dictionary behind
-``--json`` and the report; ``text()`` the printed summary.
+``--json`` and the report; ``str()`` the printed summary.
 """
 from __future__ import annotations
 
@@ -15,6 +15,7 @@ import pandas as pd
 
 from ..assay import Assay
 from ..errors import InputError
+from ..result_protocol import Result
 
 LABELS = {"validation": "validation runs with known truth",
           "runs": "past runs with latent truth"}
@@ -36,8 +37,8 @@ def _clean(value):
     return value
 
 
-@dataclass(eq=False)
-class Calibration:
+@dataclass(eq=False, repr=False)
+class Calibration(Result):
     """A fitted assay with the evidence behind it.
 
     ``kind`` is ``"validation"`` (known truth) or ``"runs"`` (latent truth). ``parameters`` has one
@@ -46,6 +47,18 @@ class Calibration:
     pool size for runs). ``comparison`` lists the families tried with their AIC. ``covariance``
     is the large-sample covariance of the free parameters on their unconstrained scale (logit of
     probabilities, log of r50 and slope), from the inverse information.
+
+    References
+    ----------
+    Akaike (1974), IEEE Trans. Automat. Control 19 (AIC); Clopper & Pearson (1934), Biometrika 26;
+    Hui & Walter (1980), Biometrics 36.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> fit = bayespool.calibrate("datasets/demo/invented_validation.csv", model="constant")
+    >>> fit.to_frame().index.tolist(), fit.summary()["model"]
+    (['specificity', 'sensitivity'], 'constant')
     """
 
     kind: str
@@ -87,8 +100,8 @@ class Calibration:
         return float(row["lower"]), float(row["upper"])
 
     def to_frame(self) -> pd.DataFrame:
-        """The parameter table: parameter, estimate, lower, upper, interval, fixed."""
-        return self.parameters.copy()
+        """The parameter table indexed by ``parameter``: estimate, lower, upper, interval, fixed."""
+        return self.parameters.set_index("parameter")
 
     def sensitivity_curve(self, dilution, draws: int = 2000, seed: int = 0):
         """Fitted Se against dilution k/d with a pointwise band at ``level`` (DataFrame)."""
@@ -120,7 +133,11 @@ class Calibration:
         out["warnings"] = list(self.warnings)
         return _clean(out)
 
-    def text(self) -> str:
+    def _brief(self) -> str:
+        return (f"{self.kind}, model={self.model!r}, {self.n_readouts} readouts, "
+                f"log_likelihood={self.log_likelihood:.4f}")
+
+    def __str__(self) -> str:
         """The printed summary."""
         pct = f"{100 * self.level:g}%"
         lines = [f"calibration from {LABELS.get(self.kind, self.kind)}: {self.model} model, "

@@ -45,7 +45,15 @@ class Cells:
 
 @dataclass
 class ValidationData:
-    """Validation readouts with known numbers of positive members."""
+    """Validation readouts with known numbers of positive members.
+
+    Examples
+    --------
+    >>> from bayespool import ValidationData
+    >>> data = ValidationData.read("datasets/demo/invented_validation.csv")
+    >>> type(data).__name__
+    'ValidationData'
+    """
 
     pool_size: np.ndarray   # int64 per readout
     positives: np.ndarray   # int64 per readout

@@ -2,16 +2,18 @@
 
 ``decode(run, assay, method)`` splits the sample-pool graph into connected components and decodes
 each with one decoder: ``exact`` enumerates a component's states, ``bp`` runs loopy belief
-propagation, ``auto`` chooses per component by cost (:func:`choose_decoders`). Decoders are entries
-of :data:`PART_DECODERS` with one signature, so another decoder plugs in by registering itself; a
-component on which BP did not converge is handed to the decoder :func:`fallback_decoder` names.
+propagation, ``auto`` chooses per component by cost (:func:`choose_decoders`). Every part decoder
+takes one :class:`DecodeProblem` (run, likelihoods, components), the selected components and typed
+:class:`DecodeOptions`, and returns a :class:`DecodedPart`; :data:`PART_DECODERS` is the fixed,
+read-only table of them. A component on which BP did not converge is handed to the decoder
+:func:`fallback_decoder` names.
 ``gibbs`` samples the whole run jointly (bayespool.decoders.gibbs), as does any method given an
 unknown prevalence (which links every sample).
 """
 from __future__ import annotations
 
-import importlib.util
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from types import MappingProxyType
 from typing import Callable
 
 import numpy as np
@@ -28,7 +30,8 @@ from ..validation import check_choice, check_count, check_seed, check_thresholds
 from .posterior import DEFAULT_NEGATIVE_BELOW, DEFAULT_POSITIVE_ABOVE, Posterior
 
 __all__ = ["decode", "Posterior", "METHODS", "EXACT_LIMIT", "EXACT_BUDGET", "components",
-           "Components", "choose_decoders", "fallback_decoder", "PART_DECODERS", "DecodedPart"]
+           "Components", "choose_decoders", "fallback_decoder", "PART_DECODERS", "DecodedPart",
+           "DecodeProblem", "DecodeOptions"]
 
 # auto: total work allowed for exact enumeration, in state updates (2^m * (m + 1) per component of
 # m samples); about a second or two on one core. Tree-shaped components past it go to BP (exact on
@@ -41,7 +44,7 @@ LOOPY_BUDGET = 2.0 ** 36
 
 def _check_pools_possible(run: Run, lik_ptr, loglik):
     """A pool whose every count d has likelihood zero cannot be explained by anything."""
-    tested = np.flatnonzero((run.n_positive + run.n_negative) > 0)
+    tested = np.flatnonzero(run.pool_read)
     finite = np.isfinite(loglik)
     any_ok = np.add.reduceat(finite, lik_ptr[:-1]) > 0 if len(loglik) else np.zeros(0, bool)
     dead = tested[~any_ok[tested]]
@@ -53,7 +56,7 @@ def sample_columns(run: Run) -> dict:
     """Per-specimen counts of read pools and of pools with a positive readout, and the plate and
     well of the samples file when it gives them (so the posterior can be found on the bench)."""
     owner_pos = np.repeat((run.n_positive > 0), run.pool_size)
-    owner_read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
+    owner_read = np.repeat(run.pool_read, run.pool_size)
     n = run.n_samples
     out = {"pools": np.bincount(run.pool_members[owner_read], minlength=n),
            "positive_pools": np.bincount(run.pool_members[owner_pos], minlength=n)}
@@ -65,6 +68,38 @@ def sample_columns(run: Run) -> dict:
 
 
 # ---- decoders of a set of components, all with one signature
+@dataclass(frozen=True, eq=False)
+class DecodeProblem:
+    """What every part decoder reads: the run, its per-pool log-likelihoods ``log L_t[d]`` (flat,
+    ``lik_ptr``/``loglik``, see :meth:`bayespool.run.Run.log_likelihood`) and its components."""
+
+    run: Run
+    lik_ptr: np.ndarray
+    loglik: np.ndarray
+    comps: Components
+
+
+@dataclass(frozen=True)
+class DecodeOptions:
+    """The checked options of one decode, as the part decoders read them.
+
+    ``ct`` holds what the Ct part decoders share (:class:`bayespool.decoders.ct_decode.CtShared`)
+    under a ``[ct]`` assay, else None.
+    """
+
+    negative_below: float
+    positive_above: float
+    exact_limit: int = EXACT_LIMIT
+    damping: float = DAMPING
+    tolerance: float = TOLERANCE
+    max_sweeps: int = MAX_SWEEPS
+    progress: bool | None = None
+    seed: object = None
+    gibbs_options: dict | None = None
+    exact_memo: object = None
+    ct: object = None
+
+
 @dataclass(eq=False)
 class DecodedPart:
     """What one decoder returns for the components it was given.
@@ -96,51 +131,50 @@ def _samples_of(comps: Components, selected: np.ndarray) -> np.ndarray:
     return np.concatenate([comps.samples_of(int(c)) for c in selected])
 
 
-def _exact_part(run, lik_ptr, loglik, comps, selected, options) -> DecodedPart:
-    prob, log_z, count_ptr, counts = decode_exact(run, lik_ptr, loglik, comps, selected,
-                                                  limit=options.get("exact_limit", EXACT_LIMIT),
-                                                  memo=options.get("exact_memo"))
+def _exact_part(problem: DecodeProblem, selected, options: DecodeOptions) -> DecodedPart:
+    comps = problem.comps
+    prob, log_z, count_ptr, counts = decode_exact(problem.run, problem.lik_ptr, problem.loglik,
+                                                  comps, selected, limit=options.exact_limit,
+                                                  memo=options.exact_memo)
     parts = [counts[count_ptr[c]:count_ptr[c + 1]] for c in selected]
     return DecodedPart("exact", selected, _samples_of(comps, selected), prob, log_z[selected],
                        parts)
 
 
-def _bp_part(run, lik_ptr, loglik, comps, selected, options) -> DecodedPart:
-    res = decode_bp(run, lik_ptr, loglik, comps, selected,
-                    damping=options.get("damping", DAMPING),
-                    tolerance=options.get("tolerance", TOLERANCE),
-                    max_sweeps=options.get("max_sweeps", MAX_SWEEPS),
-                    progress=options.get("progress"))
-    return DecodedPart("bp", selected, _samples_of(comps, selected), res.probability,
+def _bp_part(problem: DecodeProblem, selected, options: DecodeOptions) -> DecodedPart:
+    res = decode_bp(problem.run, problem.lik_ptr, problem.loglik, problem.comps, selected,
+                    damping=options.damping, tolerance=options.tolerance,
+                    max_sweeps=options.max_sweeps, progress=options.progress)
+    return DecodedPart("bp", selected, _samples_of(problem.comps, selected), res.probability,
                        unconverged=res.unconverged, converged=bool(res.converged),
                        diagnostics=res.diagnostics())
 
 
-# name -> function(run, lik_ptr, loglik, comps, selected component ids, options dict) -> DecodedPart
-PART_DECODERS: dict[str, Callable] = {"exact": _exact_part, "bp": _bp_part}
+# the built-in part decoders (problem, selected component ids, options) -> DecodedPart, by the
+# method names ``choose_decoders`` gives components; read-only: a new decoder is added here and
+# in defaults.METHODS together
+PART_DECODERS: MappingProxyType = MappingProxyType({"exact": _exact_part, "bp": _bp_part})
 
 
 def fallback_decoder(method: str, part: DecodedPart) -> Callable | None:
     """The part decoder that re-decodes the components on which ``part`` did not converge, or None.
 
     Only ``auto`` falls back (an explicit ``--method bp`` keeps BP's answer, with a warning). BP's
-    fallback is the Gibbs sampler, through ``bayespool.decoders.gibbs.fallback`` when that module is
-    part of the package; without it there is none and decode warns loudly.
+    fallback is the Gibbs sampler, through ``bayespool.decoders.gibbs.fallback``.
     """
     if method != "auto" or part.method != "bp" or not len(part.unconverged):
-        return None
-    if importlib.util.find_spec(__name__ + ".gibbs") is None:
         return None
     return _gibbs_part
 
 
-def _gibbs_part(run, lik_ptr, loglik, comps, selected, options) -> DecodedPart:
+def _gibbs_part(problem: DecodeProblem, selected, options: DecodeOptions) -> DecodedPart:
     """The Gibbs sampler on the given components, via ``gibbs.fallback(run, lik_ptr, loglik, comps,
     selected, why, seed, negative_below, positive_above, options)``."""
     from .gibbs import fallback
-    fb = fallback(run, lik_ptr, loglik, comps, selected, "belief propagation did not converge",
-                  options.get("seed"), options["negative_below"], options["positive_above"],
-                  options.get("gibbs_options"))
+    run = problem.run
+    fb = fallback(run, problem.lik_ptr, problem.loglik, problem.comps, selected,
+                  "belief propagation did not converge", options.seed, options.negative_below,
+                  options.positive_above, options.gibbs_options)
     prob = np.array(run.prior, dtype=float)
     prob[fb.specimens] = fb.probability
     mcse = np.zeros(run.n_samples)
@@ -260,12 +294,65 @@ def decode(run: Run, assay, *, method: str = "auto",
     (:mod:`bayespool.decisions`). ``expectations`` adds what the batch can expect of its calls
     (``Posterior.batch``), ``model_check`` the posterior predictive check of the readouts
     (``Posterior.model_check``, :mod:`bayespool.modelcheck`).
+
+    Parameters
+    ----------
+    run : Run
+        Layout, readouts and priors (:func:`bayespool.read_run`).
+    assay : Assay
+        Specificity and Se(k, d) (:func:`bayespool.read_assay`).
+    method : {"auto", "exact", "bp", "gibbs"}
+        ``auto``: exact enumeration of small groups of linked specimens (at most ``exact_limit``),
+        belief propagation on large ones, the Gibbs sampler where propagation is loopy.
+    negative_below, positive_above : float, optional
+        Call thresholds on the probability.
+    seed : int or numpy.random.Generator, optional
+        Random seed of the sampler (reproducible results).
+    damping, tolerance, max_sweeps : float, float, int
+        Belief propagation: damping in [0, 1), convergence tolerance on message log-odds, sweep cap.
+    gibbs_options : dict, optional
+        Options of the Gibbs sampler (``chains``, ``max_sweeps``, ``prevalence_prior``, ...).
+    target_sensitivity, max_false_discovery : float, optional
+        Batch targets for the calls.
+
+    Returns
+    -------
+    Posterior
+        Probabilities and calls per specimen (``to_frame()`` indexed by sample), diagnostics.
+
+    Raises
+    ------
+    InputError
+        A bad option (naming the parameter) or a run the assay cannot decode.
+    ImpossibleEvidenceError
+        Readouts that have probability zero under the assay (e.g. a positive pool of specimens all
+        ruled out by a perfectly sensitive test).
+
+    References
+    ----------
+    Exact enumeration of the posterior of linked specimens; loopy belief propagation:
+    Sejdinovic & Johnson (2010), Allerton; Gibbs sampling with latent statuses: Knill, Schliep &
+    Torney (1996), J. Comput. Biol. 3(3); McMahan, Tebbs, Hanson & Bilder (2017), Biometrics
+    73(4); batch expectations: Müller, Parmigiani, Robert & Rousseau (2004), JASA 99; model check:
+    Gelman, Meng & Stern (1996), Statistica Sinica 6.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> posterior = bayespool.decode(run, bayespool.read_assay("datasets/demo/assay.toml"))
+    >>> posterior.counts()
+    {'positive': 4, 'negative': 279, 'inconclusive': 5, 'untested': 0}
+    >>> posterior.to_frame().loc["SW1-A1", "call"]
+    'negative'
     """
     from ..ct_evidence import ct_notes
     rule = DecisionRule(negative_below, positive_above, target_sensitivity, max_false_discovery)
     post = _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max_sweeps,
                    progress, gibbs_options, expectations, model_check, exact_memo)
     post.warnings.extend(ct_notes(run, assay))
+    post.n_pools, post.n_readouts = run.n_pools, run.n_readouts
     return post
 
 
@@ -297,26 +384,26 @@ def _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max
         return _judge(run, assay, post, rule, (lik_ptr, loglik), None, seed, expectations,
                       model_check)
     comps = components(run)
+    problem = DecodeProblem(run, lik_ptr, loglik, comps)
     choice = choose_decoders(run, comps, method, exact_limit)
-    options = {"exact_limit": exact_limit, "damping": damping, "tolerance": tolerance,
-               "max_sweeps": max_sweeps, "progress": progress, "seed": seed,
-               "negative_below": lo, "positive_above": hi, "gibbs_options": gibbs_options,
-               "exact_memo": exact_memo}
+    options = DecodeOptions(lo, hi, exact_limit=exact_limit, damping=damping,
+                            tolerance=tolerance, max_sweeps=max_sweeps, progress=progress,
+                            seed=seed, gibbs_options=gibbs_options, exact_memo=exact_memo)
     decoders = PART_DECODERS
     if assay.ct is not None:  # shared Cts: joint enumeration where affordable (decode.ct_decode)
-        from .ct_decode import ct_exact_part, ct_gibbs_part, ct_options
-        options.update(ct_options(run, assay, comps, method, choice))
+        from .ct_decode import CtShared, ct_exact_part, ct_gibbs_part
+        options = replace(options, ct=CtShared.build(run, assay, comps, method, choice))
         decoders = {**PART_DECODERS, "exact": ct_exact_part, "gibbs": ct_gibbs_part}
     parts = []
     for name in [m for m in decoders if (choice.method == m).any()]:
-        part = decoders[name](run, lik_ptr, loglik, comps, choice.components(name), options)
+        part = decoders[name](problem, choice.components(name), options)
         parts.append(part)
         if len(part.unconverged):
             fallback = fallback_decoder(method, part)
             if fallback is None:
                 part.warnings.append(_not_converged(part, comps, None))
                 continue
-            redo = fallback(run, lik_ptr, loglik, comps, part.unconverged, options)
+            redo = fallback(problem, part.unconverged, options)
             choice.method[part.unconverged] = redo.method
             part.warnings.append(_not_converged(part, comps, f"re-decoded by {redo.method}"))
             parts.append(redo)
@@ -355,9 +442,7 @@ def _not_converged(part: DecodedPart, comps: Components, remedy: str | None) -> 
             f"{d.get('tolerance'):g})")
     if remedy:
         return f"{head}; {remedy}"
-    hint = "raise --max-sweeps or --damping (e.g. 0.5)"
-    if "gibbs" in PART_DECODERS:
-        hint += ", or use --method gibbs"
+    hint = "raise --max-sweeps or --damping (e.g. 0.5), or use --method gibbs"
     return f"{head}; their probabilities are unreliable: {hint}"
 
 

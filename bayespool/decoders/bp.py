@@ -28,6 +28,7 @@ floored at the smallest positive double rather than turned into hard zeros.
 """
 from __future__ import annotations
 
+import sys
 import time
 from dataclasses import dataclass, field
 
@@ -37,6 +38,7 @@ from numba import njit
 from ..defaults import BP_DAMPING as DAMPING  # new = damping * old + (1 - damping) * computed
 from ..defaults import BP_MAX_SWEEPS as MAX_SWEEPS
 from ..defaults import BP_TOLERANCE as TOLERANCE  # converged: no message moved this much in a sweep
+from ..progress import progress_bar
 from ..validation import check_count, check_fraction, check_positive
 from .exact import impossible
 
@@ -454,7 +456,9 @@ def decode_bp(run, lik_ptr, loglik, comps, selected=None, damping: float = DAMPI
     residual, sweeps, converged, history = np.inf, 0, False, []
     start, start_cpu = time.perf_counter(), time.process_time()
     _init_state(order, run.pool_ptr, run.pool_members, mu, prior_logodds, state)
-    bar = _progress(max_sweeps, progress, len(order))
+    if progress is None:  # only long runs show a bar by default
+        progress = sys.stderr.isatty() and len(order) >= 100_000
+    bar = progress_bar(progress, max_sweeps, desc="belief propagation", unit="sweep")
     try:
         for sweeps in range(1, max_sweeps + 1):
             residual, status, t, i = _sweep(order, run.pool_ptr, run.pool_members, lik_ptr, loglik,
@@ -463,15 +467,13 @@ def decode_bp(run, lik_ptr, loglik, comps, selected=None, damping: float = DAMPI
             if status:
                 raise _impossible_at(run, comps, t, i)
             history.append(float(residual))
-            if bar is not None:
-                bar.update(1)
-                bar.set_postfix(residual=f"{residual:.2e}")
+            bar.update(1)
+            bar.set_postfix(residual=f"{residual:.2e}")
             if residual < tolerance:
                 converged = True
                 break
     finally:
-        if bar is not None:
-            bar.close()
+        bar.close()
     seconds, cpu_seconds = time.perf_counter() - start, time.process_time() - start_cpu
     prob = np.array(prior, dtype=float)
     bad = _posterior(state, samples, prob)
@@ -486,24 +488,13 @@ def decode_bp(run, lik_ptr, loglik, comps, selected=None, damping: float = DAMPI
                     history=history, cpu_seconds=cpu_seconds)
 
 
-def _progress(total, progress, n_pools):
-    import sys
-    if progress is None:
-        progress = sys.stderr.isatty() and n_pools >= 100_000
-    if not progress:
-        return None
-    from tqdm import tqdm
-    return tqdm(total=total, desc="belief propagation", unit="sweep", file=sys.stderr,
-                leave=False)
-
-
 def _impossible_at(run, comps, t, i):
     """The impossible-evidence error for a pool (t >= 0) or a sample forced both ways (i >= 0)."""
     if t >= 0:
         pools = np.array([t])
     else:
         pools = run.pools_of(i)
-        pools = pools[(run.n_positive[pools] + run.n_negative[pools]) > 0]
+        pools = pools[run.pool_read[pools]]
     return impossible(run, pools)
 
 

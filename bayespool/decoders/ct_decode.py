@@ -14,6 +14,7 @@ individual Ct given that it is positive: exact from the joint enumeration, other
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -32,7 +33,7 @@ SHARED_NOTE = ("belief propagation on per-pool Ct likelihoods ignores that a spe
 
 def shared_components(run, comps) -> np.ndarray:
     """Per component: does some specimen lie in two or more read pools?"""
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     owner = np.repeat(read, run.pool_size)
     n_read = np.bincount(run.pool_members[owner], minlength=run.n_samples)
     shared = np.zeros(comps.n_components, dtype=bool)
@@ -57,7 +58,7 @@ def ct_choice(run, comps, method: str, choice):
             from ..errors import InputError
             raise InputError(f"a group of {int(sizes[big].max())} specimens linked through shared "
                              f"pools is above the exact Ct decoder's limit of {CT_EXACT_LIMIT}; "
-                             "use --method auto or bp")
+                             "use `method` auto or bp")
     if method == "gibbs":
         choice.method[:] = "gibbs"
     if method == "auto":
@@ -78,10 +79,33 @@ def ct_choice(run, comps, method: str, choice):
     return shared, notes
 
 
-def ct_exact_part(run, lik_ptr, loglik, comps, selected, options):
+@dataclass(frozen=True, eq=False)
+class CtShared:
+    """What the Ct part decoders and :func:`finish_ct` share in one decode: the assay, which
+    components share Cts (and the notes saying so), the pools' Ct statistics, and the ct_mean /
+    ct_low / ct_high columns the decoders fill."""
+
+    assay: object
+    shared: np.ndarray
+    notes: list
+    stats: PoolCtStats
+    columns: dict
+
+    @classmethod
+    def build(cls, run, assay, comps, method, choice) -> "CtShared":
+        """From the run, with ``choice`` adjusted in place (:func:`ct_choice`)."""
+        shared, notes = ct_choice(run, comps, method, choice)
+        return cls(assay, shared, notes, PoolCtStats.from_run(run, assay.ct),
+                   {name: np.full(run.n_samples, np.nan)
+                    for name in ("ct_mean", "ct_low", "ct_high")})
+
+
+def ct_exact_part(problem, selected, options):
     """Part decoder: joint Ct enumeration on shared groups, the binary enumerator elsewhere."""
     from . import DecodedPart, _exact_part, _samples_of
-    assay, shared = options["assay"], options["ct_shared"]
+    run, lik_ptr, loglik, comps = problem.run, problem.lik_ptr, problem.loglik, problem.comps
+    ct = options.ct
+    assay, shared = ct.assay, ct.shared
     selected = np.asarray(selected, dtype=np.int64)
     plain = selected[~shared[selected]]
     joint = selected[shared[selected]]
@@ -89,16 +113,16 @@ def ct_exact_part(run, lik_ptr, loglik, comps, selected, options):
     log_z = np.zeros(len(selected))
     parts = []
     if len(plain):
-        p = _exact_part(run, lik_ptr, loglik, comps, plain, options)
+        p = _exact_part(problem, plain, options)
         prob[p.samples] = p.probability[p.samples]
         log_z[np.searchsorted(selected, plain)] = p.log_z
         parts.extend(p.count_parts)
     omitted = 0.0
     if len(joint):
         model = assay.ct
-        stats = options["ct_stats"]
+        stats = ct.stats
         nodes, log_w = exact_grid(model)
-        cols = options["ct_columns"]
+        cols = ct.columns
         for c in joint:
             samples = comps.samples_of(int(c))
             pr, marg, lz, counts, om = decode_group(model, run, stats, samples, comps.pools_of(int(c)),
@@ -108,7 +132,7 @@ def ct_exact_part(run, lik_ptr, loglik, comps, selected, options):
             omitted += om
             parts.append(counts)
             for j, s in enumerate(samples):
-                if pr[j] >= options["negative_below"] and not np.isnan(marg[j, 0]):
+                if pr[j] >= options.negative_below and not np.isnan(marg[j, 0]):
                     cols["ct_mean"][s], cols["ct_low"][s], cols["ct_high"][s] = \
                         ct_summary(nodes, marg[j])
     part = DecodedPart("exact", selected, _samples_of(comps, selected), prob, log_z, parts)
@@ -123,20 +147,21 @@ def ct_exact_part(run, lik_ptr, loglik, comps, selected, options):
     return part
 
 
-def ct_gibbs_part(run, lik_ptr, loglik, comps, selected, options):
+def ct_gibbs_part(problem, selected, options):
     """Part decoder: the Ct sampler (:mod:`bayespool.decoders.ct_gibbs`) on the given groups, sweeps
     doubled from 2000 until split R-hat <= 1.01 and ESS >= 400 on every specimen whose draws vary
     (or 16000 sweeps per chain, with a warning)."""
     from . import DecodedPart, _samples_of
     from .ct_gibbs import sample_ct
     from .gibbs.diagnostics import rhat_ess
+    run, ct = problem.run, options.ct
     selected = np.asarray(selected, dtype=np.int64)
-    specimens = np.sort(_samples_of(comps, selected)).astype(np.int64)
+    specimens = np.sort(_samples_of(problem.comps, selected)).astype(np.int64)
     sweeps = GIBBS_SWEEPS[0]
-    seed = options.get("seed")
+    seed = options.seed
     while True:
-        p, draws, nodes, hist = sample_ct(run, options["assay"], options["ct_stats"], lik_ptr,
-                                          loglik, specimens, chains=4, sweeps=sweeps,
+        p, draws, nodes, hist = sample_ct(run, ct.assay, ct.stats, problem.lik_ptr,
+                                          problem.loglik, specimens, chains=4, sweeps=sweeps,
                                           burn=sweeps // 4, seed=seed)
         r, e = rhat_ess(draws.astype(float))
         ok = bool(np.all(r <= 1.01) and np.all(e >= 400))
@@ -145,10 +170,10 @@ def ct_gibbs_part(run, lik_ptr, loglik, comps, selected, options):
         sweeps *= 2
     prob = np.array(run.prior, dtype=float)
     prob[specimens] = p
-    cols = options["ct_columns"]
+    cols = ct.columns
     with np.errstate(divide="ignore"):
         for j, i in enumerate(specimens):
-            if p[j] >= options["negative_below"] and hist[j].sum() > 0:
+            if p[j] >= options.negative_below and hist[j].sum() > 0:
                 cols["ct_mean"][i], cols["ct_low"][i], cols["ct_high"][i] = \
                     ct_summary(nodes, np.log(hist[j]))
     part = DecodedPart("gibbs", selected, specimens, prob, converged=ok,
@@ -194,30 +219,22 @@ def approximate_ct(model, run, stats: PoolCtStats, probability, specimens):
     return out
 
 
-def ct_options(run, assay, comps, method, choice) -> dict:
-    """What the Ct part decoder and :func:`finish_ct` need, with the choice adjusted in place."""
-    shared, notes = ct_choice(run, comps, method, choice)
-    return {"assay": assay, "ct_shared": shared, "ct_notes": notes,
-            "ct_stats": PoolCtStats.from_run(run, assay.ct),
-            "ct_columns": {name: np.full(run.n_samples, np.nan)
-                           for name in ("ct_mean", "ct_low", "ct_high")}}
-
-
 def finish_ct(post, run, assay, options, choice) -> None:
     """Add ct_mean/ct_low/ct_high to the posterior (exact where the joint enumeration ran,
     approximate elsewhere) and say how the Cts were used."""
-    cols = options["ct_columns"]
-    lo = options["negative_below"]
-    read = (run.n_positive + run.n_negative) > 0
+    ct = options.ct
+    cols = ct.columns
+    lo = options.negative_below
+    read = run.pool_read
     in_read = np.bincount(run.pool_members[np.repeat(read, run.pool_size)],
                           minlength=run.n_samples) > 0
     todo = np.flatnonzero((post.probability >= lo) & np.isnan(cols["ct_mean"]) & in_read)
     if len(todo):
-        vals = approximate_ct(assay.ct, run, options["ct_stats"], post.probability, todo)
+        vals = approximate_ct(assay.ct, run, ct.stats, post.probability, todo)
         for a, name in enumerate(("ct_mean", "ct_low", "ct_high")):
             cols[name][todo] = vals[:, a]
     post.columns.update(cols)
-    ignores = bool(np.any(options["ct_shared"] & (choice.method == "bp")))
+    ignores = bool(np.any(ct.shared & (choice.method == "bp")))
     post.diagnostics["ct"] = {
         "model": assay.ct.describe(),
         "ignores_shared_ct": ignores,
@@ -227,4 +244,4 @@ def finish_ct(post, run, assay, options, choice) -> None:
                        "approximate (at most one other positive per pool, the others at their "
                        "marginals)",
     }
-    post.warnings.extend(options["ct_notes"])
+    post.warnings.extend(ct.notes)

@@ -10,37 +10,39 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
-from ..run import Run, csr
+from ..csr import CSR, CSRPart
+from ..run import Run
 
 
 @dataclass(frozen=True)
 class Components:
-    """Samples and read pools grouped by component, as CSR; ``sample_label[i]`` is i's component."""
+    """Samples and read pools grouped by component; ``sample_label[i]`` is i's component.
+
+    ``members`` and ``read_pools`` are :class:`~bayespool.csr.CSR` rows per component (int32
+    sample and pool indices); ``sample_ptr``/``samples`` and ``pool_ptr``/``pools`` are their
+    arrays, as the kernels take them.
+    """
 
     sample_label: np.ndarray  # int32 (n_samples,)
-    sample_ptr: np.ndarray    # int64 (n_components + 1,)
-    samples: np.ndarray       # int32, sample indices grouped by component
-    pool_ptr: np.ndarray      # int64 (n_components + 1,)
-    pools: np.ndarray         # int32, read pool indices grouped by component
+    members: CSR
+    read_pools: CSR
+
+    sample_ptr = CSRPart("members", "ptr")
+    samples = CSRPart("members", "indices")
+    pool_ptr = CSRPart("read_pools", "ptr")
+    pools = CSRPart("read_pools", "indices")
 
     @property
     def n_components(self) -> int:
-        return len(self.sample_ptr) - 1
+        return len(self.members)
 
-    @property
-    def sizes(self) -> np.ndarray:
-        return np.diff(self.sample_ptr)
+    sizes = CSRPart("members", "sizes")  # samples per component
 
     def samples_of(self, c: int) -> np.ndarray:
-        return self.samples[self.sample_ptr[c]:self.sample_ptr[c + 1]]
+        return self.members.row(c)
 
     def pools_of(self, c: int) -> np.ndarray:
-        return self.pools[self.pool_ptr[c]:self.pool_ptr[c + 1]]
-
-
-def read_pools(run: Run) -> np.ndarray:
-    """Boolean mask of pools with at least one readout."""
-    return (run.n_positive + run.n_negative) > 0
+        return self.read_pools.row(c)
 
 
 @njit(cache=True)
@@ -82,11 +84,11 @@ def _union_find_labels(pool_ptr, pool_members, read, n_samples):
 def components(run: Run) -> Components:
     """Connected components of samples linked through read pools (numbered by first appearance)."""
     n = run.n_samples
-    read = read_pools(run)
+    read = run.pool_read
     sample_label, n_comp = _union_find_labels(run.pool_ptr, run.pool_members, read, n)
-    sptr, samples = csr(sample_label.astype(np.int64), np.arange(n, dtype=np.int32), n_comp)
+    members = CSR.from_pairs(sample_label, np.arange(n, dtype=np.int32), n_comp)
     read_idx = np.flatnonzero(read)
     # a read pool's component is that of any member
-    pool_label = sample_label[run.pool_members[run.pool_ptr[read_idx]]].astype(np.int64)
-    pptr, pools = csr(pool_label, read_idx.astype(np.int32), n_comp)
-    return Components(sample_label, sptr, samples, pptr, pools)
+    pool_label = sample_label[run.pool_members[run.pool_ptr[read_idx]]]
+    return Components(sample_label, members,
+                      CSR.from_pairs(pool_label, read_idx.astype(np.int32), n_comp))

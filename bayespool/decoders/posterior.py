@@ -14,6 +14,7 @@ import pandas as pd
 from ..decisions import CALLS, INCONCLUSIVE, UNTESTED, Decision, DecisionRule, decide
 from ..defaults import NEGATIVE_BELOW as DEFAULT_NEGATIVE_BELOW
 from ..defaults import POSITIVE_ABOVE as DEFAULT_POSITIVE_ABOVE
+from ..result_protocol import Result
 
 
 def call_codes(probability: np.ndarray, negative_below: float, positive_above: float) -> np.ndarray:
@@ -22,8 +23,8 @@ def call_codes(probability: np.ndarray, negative_below: float, positive_above: f
     return np.where(p < negative_below, 0, np.where(p > positive_above, 2, 1)).astype(np.int8)
 
 
-@dataclass(eq=False)
-class Posterior:
+@dataclass(eq=False, repr=False)
+class Posterior(Result):
     """Posterior P(x_i = 1 | readouts) for every specimen of a run, with the decoder's diagnostics.
 
     ``method`` names the decoder (``exact``, ``bp``, ``gibbs`` or a mix such as ``exact+bp``);
@@ -36,6 +37,23 @@ class Posterior:
     by default the two thresholds; a specimen in no read pool (``columns["pools"] == 0``) is
     ``untested``. ``batch`` (what the batch can expect of its calls) and ``model_check`` (the
     posterior predictive check of the readouts) are the dictionaries of ``--json`` when computed.
+
+    References
+    ----------
+    What the batch can expect of its calls: Müller, Parmigiani, Robert & Rousseau (2004),
+    JASA 99 (posterior expected false discoveries and misses).
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> from bayespool import decode, read_assay, read_run
+    >>> demo = Path("datasets/demo")
+    >>> run = read_run(demo / "layout.csv", demo / "readouts.csv", demo / "samples.csv")
+    >>> posterior = decode(run, read_assay(demo / "assay.toml"))
+    >>> posterior["SW1-A1"]["call"], posterior.to_frame().index.name
+    ('negative', 'sample')
+    >>> print(str(posterior).splitlines()[0])
+    288 samples, 84 pools, 84 readouts, decoded by exact: 4 positive, 279 negative, 5 inconclusive
     """
 
     sample_ids: np.ndarray
@@ -55,6 +73,8 @@ class Posterior:
     rule: DecisionRule | None = None
     batch: dict | None = None
     model_check: dict | None = None
+    n_pools: int | None = None
+    n_readouts: int | None = None
 
     @property
     def n_samples(self) -> int:
@@ -136,11 +156,12 @@ class Posterior:
 
     def __getitem__(self, sample_id) -> dict:
         """One specimen's answer: ``posterior["S0012"]`` -> ``{"sample", "probability", "call",
-        "prior"}`` (plus ``mcse`` from a sampler), found in O(1)."""
+        "prior"}`` (plus ``mcse`` from a sampler), found in O(1); the call is the one
+        ``to_frame()`` shows (the rule in force, batch targets included; ``untested`` for a
+        specimen in no read pool)."""
         i = self.index_of(sample_id)
         row = {"sample": str(self.sample_ids[i]), "probability": float(self.probability[i]),
-               "call": CALLS[int(call_codes(self.probability[i:i + 1], self.negative_below,
-                                            self.positive_above)[0])],
+               "call": CALLS[int(self.call_codes()[i])],
                "prior": float(self.prior[i])}
         if self.mcse is not None:
             row["mcse"] = float(self.mcse[i])
@@ -153,10 +174,14 @@ class Posterior:
             return False
         return True
 
-    def __repr__(self) -> str:
+    def _brief(self) -> str:
         c = self.counts()
-        return (f"Posterior({self.n_samples} specimens by {self.method}: {c['positive']} "
-                f"positive, {c['negative']} negative, {c['inconclusive']} inconclusive)")
+        return (f"{self.n_samples} specimens by {self.method}: {c['positive']} "
+                f"positive, {c['negative']} negative, {c['inconclusive']} inconclusive")
+
+    def __str__(self) -> str:
+        from .posterior_text import posterior_text
+        return posterior_text(self)
 
     def positives_summary(self) -> dict:
         """Expected number of positive specimens and, when the distribution is known, a 95% interval."""
@@ -170,7 +195,7 @@ class Posterior:
         return out
 
     def to_frame(self) -> pd.DataFrame:
-        """``sample, probability, call`` plus prior, decoder and the extra columns."""
+        """``probability, call`` plus prior, decoder and the extra columns, indexed by ``sample``."""
         frame = pd.DataFrame({"sample": self.sample_ids, "probability": self.probability,
                               "call": self.calls(), "call_rule": self.decision().rules,
                               "prior": self.prior, "method": self.sample_method})
@@ -178,7 +203,7 @@ class Posterior:
             frame["mcse"] = self.mcse
         for name, values in self.columns.items():
             frame[name] = values
-        return frame
+        return frame.set_index("sample")
 
     def summary(self) -> dict:
         """A JSON-ready summary."""

@@ -35,7 +35,43 @@ __all__ = ["Design", "DesignProperties", "SCHEMES", "make_design", "dorfman_desi
 
 
 def make_design(scheme: str, samples, **options) -> Design:
-    """Build the named design; ``options`` are the scheme function's keyword arguments."""
+    """Build the named pooling design.
+
+    Parameters
+    ----------
+    scheme : {"dorfman", "array", "kautz-singleton", "random", "code"}
+        The design.
+    samples : int, str or path-like
+        The number of specimens (IDs S0001, ...) or a samples file.
+    **options
+        The scheme's keyword arguments: ``pool_size``, ``fill``, ``by_risk`` (dorfman); ``rows``,
+        ``cols`` (array); ``positives``, ``q``, ``dimension``, ``length`` (kautz-singleton);
+        ``pools_per_sample``, ``pools``, ``seed`` (random); ``errors``, ``code`` (code); and
+        ``max_pool_size`` for all.
+
+    Returns
+    -------
+    Design
+        The layout (``to_frame()``, one row per membership) and its properties.
+
+    Raises
+    ------
+    InputError
+        The scheme is not one of the five, or an option is out of range (the message names it).
+
+    References
+    ----------
+    Dorfman (1943), Ann. Math. Statist. 14(4); Kautz & Singleton (1964), IEEE Trans. Inf. Theory
+    10(4); Hamming and BCH codes: MacWilliams & Sloane (1977), The Theory of Error-Correcting
+    Codes.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> design = bayespool.make_design("dorfman", 20, pool_size=4)
+    >>> design.properties.n_pools, design.to_frame().iloc[0].tolist()
+    (5, ['D001', 'S0001'])
+    """
     from ..errors import InputError
     if scheme not in SCHEMES:
         raise InputError(f"unknown design scheme {scheme!r} (choose one of {', '.join(SCHEMES)})")

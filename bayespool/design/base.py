@@ -13,7 +13,9 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError
-from ..run import PoolIncidence, csr
+from ..result_protocol import Result, membership_index
+from ..csr import CSR
+from ..run import PoolIncidence
 from ..validation import check_count
 
 
@@ -53,9 +55,19 @@ def max_overlap(pool_ptr: np.ndarray, pool_members: np.ndarray, n_samples: int) 
     return int(gram.data[off].max()) if off.any() else 0
 
 
-@dataclass
-class DesignProperties:
-    """The numbers that describe a design; ``disjunct`` is the guaranteed d (None if unknown)."""
+@dataclass(repr=False)
+class DesignProperties(Result):
+    """The numbers that describe a design; ``disjunct`` is the guaranteed d (None if unknown).
+
+    ``to_frame()`` has one row per property (index ``property``) with its ``value``.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> props = bayespool.make_design("array", 24, rows=4, cols=6).properties
+    >>> props.to_frame().loc["pools", "value"]
+    10
+    """
 
     scheme: str
     n_samples: int
@@ -71,7 +83,7 @@ class DesignProperties:
     parameters: dict = field(default_factory=dict)
     notes: list = field(default_factory=list)
 
-    def to_dict(self) -> dict:
+    def summary(self) -> dict:
         return {"scheme": self.scheme, "samples": self.n_samples, "pools": self.n_pools,
                 "memberships": self.n_memberships,
                 "pool_size": {"min": self.pool_size_min, "max": self.pool_size_max,
@@ -81,7 +93,24 @@ class DesignProperties:
                 "max_overlap": self.max_overlap, "disjunct": self.disjunct,
                 "parameters": dict(self.parameters), "notes": list(self.notes)}
 
-    def lines(self) -> list[str]:
+    def to_frame(self) -> pd.DataFrame:
+        rows = {"scheme": self.scheme, "samples": self.n_samples, "pools": self.n_pools,
+                "memberships": self.n_memberships, "pool_size_min": self.pool_size_min,
+                "pool_size_max": self.pool_size_max, "pool_size_mean": self.pool_size_mean,
+                "pools_per_sample_min": self.pools_per_sample_min,
+                "pools_per_sample_max": self.pools_per_sample_max,
+                "max_overlap": self.max_overlap, "disjunct": self.disjunct}
+        return pd.DataFrame({"value": list(rows.values())},
+                            index=pd.Index(list(rows), name="property"))
+
+    def _brief(self) -> str:
+        return (f"{self.scheme!r}, {self.n_samples} specimens, {self.n_pools} pools, "
+                f"disjunct={self.disjunct}")
+
+    def __str__(self) -> str:
+        return "\n".join(self._lines())
+
+    def _lines(self) -> list[str]:
         """Human-readable description, one fact per line."""
         def span(lo, hi, mean=None):
             if lo == hi:
@@ -108,14 +137,35 @@ class DesignProperties:
         return out
 
 
-@dataclass(eq=False)
-class Design(PoolIncidence):
-    """A pooling design: pool ``t`` holds specimens ``pool_members[pool_ptr[t]:pool_ptr[t+1]]``."""
+@dataclass(eq=False, repr=False)
+class Design(PoolIncidence, Result):
+    """A pooling design: ``by_pool`` (a :class:`~bayespool.csr.CSR`) lists each pool's specimens;
+    pool ``t`` holds ``pool_members[pool_ptr[t]:pool_ptr[t+1]]``.
+
+    ``to_frame()`` is the layout (``pool, sample``, one row per membership, index
+    ``membership``); ``summary()`` and ``str()`` describe its properties, and ``str()`` lists the
+    pools of a small code design (at most 64 specimens) as ``bayespool design`` prints them.
+
+    References
+    ----------
+    Dorfman (1943); Kautz & Singleton (1964), IEEE Trans. Inf. Theory 10(4).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> design = bayespool.make_design("dorfman", 8, pool_size=4)
+    >>> print(design)
+    design: dorfman (pool_size = 4)
+      specimens: 8, pools: 2, memberships: 8
+      pool size: 4
+      pools per specimen: 1
+      two specimens share at most 1 pool
+      disjunctness: none (one round cannot single out even one positive; positives need follow-up tests)
+    """
 
     sample_ids: np.ndarray
     pool_ids: np.ndarray
-    pool_ptr: np.ndarray
-    pool_members: np.ndarray
+    by_pool: CSR
     properties: DesignProperties
 
     @property
@@ -124,8 +174,27 @@ class Design(PoolIncidence):
 
     def sample_pools(self):
         """CSR (ptr, pools) from specimen to the pools it is in."""
-        owner = np.repeat(np.arange(self.n_pools, dtype=np.int64), self.pool_size)
-        return csr(self.pool_members.astype(np.int64), owner, self.n_samples)
+        by_sample = self.by_pool.transpose(self.n_samples)
+        return by_sample.ptr, by_sample.indices
+
+    def to_frame(self) -> pd.DataFrame:
+        return self.layout.set_axis(membership_index(len(self.pool_members)))
+
+    def summary(self) -> dict:
+        return self.properties.summary()
+
+    def pool_lines(self) -> list[str]:
+        """The pools with their members, listed for a small code design (else nothing)."""
+        if self.properties.scheme != "code" or self.n_samples > 64:
+            return []
+        return [f"  pool {self.pool_ids[t]}: " + " ".join(map(str, self.sample_ids[self.members(t)]))
+                for t in range(self.n_pools)]
+
+    def __str__(self) -> str:
+        return "\n".join([str(self.properties)] + self.pool_lines())
+
+    def _brief(self) -> str:
+        return self.properties._brief()
 
     @property
     def layout(self) -> pd.DataFrame:
@@ -171,7 +240,7 @@ def build_design(scheme: str, sample_ids, pool_ids, pool_ptr, pool_members, *,
         pools_per_sample_max=int(weight.max()) if n else 0,
         max_overlap=overlap, disjunct=disjunct,
         parameters=dict(parameters or {}), notes=list(notes or []))
-    return Design(sample_ids, pool_ids, pool_ptr, pool_members, props)
+    return Design(sample_ids, pool_ids, CSR(pool_ptr, pool_members), props)
 
 
 def pool_labels(prefix: str, count: int, start: int = 1) -> np.ndarray:

@@ -26,6 +26,7 @@ import pandas as pd
 from scipy.stats import binom
 
 from ..assay import Assay, ConstantSensitivity
+from ..result_protocol import Result
 from ..validation import check_count, check_open_probability
 from .base import check_max_pool_size
 
@@ -97,9 +98,25 @@ def individual_expected(prevalence: float, assay: Assay | None = None) -> Dorfma
     return dorfman_expected(prevalence, 1, assay)
 
 
-@dataclass
-class DorfmanOptimum:
-    """The pool size with the fewest expected tests per specimen, and the whole curve."""
+@dataclass(repr=False)
+class DorfmanOptimum(Result):
+    """The pool size with the fewest expected tests per specimen, and the whole curve.
+
+    ``to_frame()`` is the curve, one row per pool size tried (index ``pool_size``); ``assay`` is
+    the assay the closed forms used (None: an error-free test) and ``capped`` says whether the
+    search stopped at a ``max_pool_size`` the caller gave.
+
+    References
+    ----------
+    Dorfman (1943), Ann. Math. Statist. 14(4); Kim et al. (2007), Biometrics 63(4).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> opt = bayespool.optimal_dorfman(0.05)
+    >>> opt.best.pool_size, opt.to_frame().index.name
+    (5, 'pool_size')
+    """
 
     best: DorfmanExpectation
     table: pd.DataFrame      # one row per pool size tried
@@ -108,14 +125,52 @@ class DorfmanOptimum:
     at_limit: bool = False   # the best is the largest size searched: a larger one may be better
     target_sensitivity: float | None = None  # only sizes meeting it competed
     meets_target: bool = True  # False: no size meets the target; the most sensitive is given
+    assay: Assay | None = None
+    capped: bool = False
 
-    def to_dict(self) -> dict:
+    def summary(self) -> dict:
         out = self.best.to_dict()
         out.update({"pooling_saves": self.saves, "max_pool_size": self.max_pool_size,
                     "at_limit": self.at_limit, "target_sensitivity": self.target_sensitivity,
                     "meets_target": self.meets_target,
                     "tests_saved_percent": 100.0 * (1.0 - self.best.tests_per_sample)})
+        out["assay"] = self.assay.describe() if self.assay is not None else "error-free"
         return out
+
+    def to_frame(self) -> pd.DataFrame:
+        return self.table.set_index("pool_size")
+
+    def _brief(self) -> str:
+        return (f"pool_size={self.best.pool_size}, tests_per_sample="
+                f"{self.best.tests_per_sample:.4f}, prevalence={self.best.prevalence:g}")
+
+    def __str__(self) -> str:
+        b, assay = self.best, self.assay
+        source = ("Kim et al. 2007 closed forms" + (" with dilution" if
+                  assay.sensitivity.model != "constant" else "")) if assay else \
+            "error-free test, Dorfman 1943"
+        lines = [f"Dorfman pooling at prevalence {b.prevalence:g} ({source})"]
+        if not self.saves and self.target_sensitivity is None:
+            lines.append(f"  pooling saves nothing at this prevalence: test each specimen alone "
+                         f"(pool sizes 2 to {self.max_pool_size} all cost more)")
+        limit = ""
+        if self.at_limit:
+            limit = (" (the --max-pool-size limit: larger pools would cost fewer tests)"
+                     if self.capped else
+                     " (the largest size searched: a larger --max-pool-size may do better)")
+        if self.target_sensitivity is not None:
+            lines.append(f"  among pool sizes with a sensitivity of at least "
+                         f"{self.target_sensitivity:g}"
+                         + ("" if self.meets_target else ": none reaches it, so the most sensitive"))
+        lines.append(f"  best pool size: {b.pool_size}{limit}")
+        lines.append(f"  expected tests per specimen: {b.tests_per_sample:.4f} "
+                     f"({100 * (1 - b.tests_per_sample):.1f}% fewer than one test each)")
+        lines.append(f"  pooled sensitivity: {b.sensitivity:.4f}, pooled specificity: "
+                     f"{b.specificity:.4f}")
+        t = self.table.sort_values("tests_per_sample").head(5).sort_values("pool_size")
+        lines.append("  nearby: " + ", ".join(f"k={int(r.pool_size)}: {r.tests_per_sample:.4f}"
+                                              for r in t.itertuples()))
+        return "\n".join(lines)
 
 
 def default_max_pool_size(prevalence: float) -> int:
@@ -133,6 +188,38 @@ def optimal_dorfman(prevalence: float, assay: Assay | None = None, *,
     ``target_sensitivity``, only pool sizes whose closed-form sensitivity meets it compete; when
     none does (not even testing alone), ``meets_target`` is False and the most sensitive size is
     returned.
+
+    Parameters
+    ----------
+    prevalence : float
+        The expected fraction of positive specimens, strictly between 0 and 1.
+    assay : Assay, optional
+        The assay (default: an error-free test).
+    max_pool_size : int, optional
+        The largest pool size searched (default: far enough past 1/sqrt(p)).
+    target_sensitivity : float, optional
+        Only pool sizes whose sensitivity meets it compete.
+
+    Returns
+    -------
+    DorfmanOptimum
+
+    Raises
+    ------
+    InputError
+        A prevalence outside (0, 1) or a bad option (naming the parameter).
+
+    References
+    ----------
+    Dorfman, R. (1943). Ann. Math. Statist. 14(4), 436-440; Kim, Hudgens, Dreyfuss, Westreich &
+    Pilcher (2007). Biometrics 63(4), 1152-1163.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> best = bayespool.optimal_dorfman(0.02).best
+    >>> best.pool_size, round(best.tests_per_sample, 3)
+    (8, 0.274)
     """
     p = check_open_probability(prevalence, "prevalence")
     limit = check_max_pool_size(max_pool_size)
@@ -156,7 +243,8 @@ def optimal_dorfman(prevalence: float, assay: Assay | None = None, *,
     best = min(pool, key=lambda r: (round(r.tests_per_sample, 12), r.pool_size))
     return DorfmanOptimum(best, table, best.pool_size > 1, kmax,
                           at_limit=best.pool_size == sizes[-1] and len(sizes) > 1,
-                          target_sensitivity=target_sensitivity, meets_target=meets)
+                          target_sensitivity=target_sensitivity, meets_target=meets,
+                          assay=assay, capped=limit is not None)
 
 
 def dorfman_cohort_expected(prevalence: float, n: int, pool_size: int,

@@ -143,7 +143,7 @@ def _families_for(errors: int, family: str | None) -> list[tuple[str, int]]:
     if family is None:
         return [("hamming", 1), ("extended-hamming", 1)] if errors == 1 else [("bch", errors)]
     if family in ("hamming", "extended-hamming") and errors > 1:
-        raise InputError(f"a {family} code corrects one wrong readout; ask for --code bch to "
+        raise InputError(f"a {family} code corrects one wrong readout; ask for `code` 'bch' to "
                          f"tolerate {errors}")
     return [(family, 1 if family.endswith("hamming") else errors)]
 

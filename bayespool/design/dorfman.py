@@ -21,7 +21,7 @@ def dorfman_blocks(n: int, k: int):
     return ptr, np.arange(n, dtype=np.int32)
 
 
-def dorfman_design(samples, pool_size: int | None, max_pool_size: int | None = None,
+def dorfman_design(samples, pool_size: int | None = None, max_pool_size: int | None = None,
                    fill: str | None = None, by_risk: bool = False) -> Design:
     """Pools of ``pool_size`` consecutive specimens in the given order.
 
@@ -62,13 +62,13 @@ def _informative(spec, pool_size, max_pool_size) -> Design:
     n = len(order)
     notes = ["specimens pooled by ascending risk (informative Dorfman)"]
     if pool_size is not None:
-        k = check_count(pool_size, "--pool-size")
+        k = check_count(pool_size, "pool_size")
         ptr, _ = dorfman_blocks(n, k)
         parameters = {"pool_size": k, "by_risk": True}
     else:
         if limit is None:
-            raise InputError("--by-risk without --pool-size chooses pool sizes up to "
-                             "--max-pool-size K: give one of them")
+            raise InputError("`by_risk` without `pool_size` chooses pool sizes up to "
+                             "`max_pool_size`: give one of them")
         ptr = optimal_blocks(p, limit)
         sizes = np.diff(ptr)
         parameters = {"pool_size": "by risk", "by_risk": True}

@@ -18,8 +18,8 @@ from ..errors import InputError
 def risk_order(prior: np.ndarray | None, source) -> np.ndarray:
     """Specimen order by ascending risk (stable); every specimen needs a prior."""
     if prior is None or np.isnan(prior).any():
-        raise InputError("--by-risk needs a prior for every specimen in the samples file (for "
-                         "example the priors file of bayespool regress)", source)
+        raise InputError("`by_risk` needs a prior for every specimen in the samples file (for "
+                         "example the fitted risks of a group testing regression)", source)
     return np.argsort(prior, kind="stable")
 
 

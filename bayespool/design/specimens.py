@@ -14,7 +14,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..io import read_table
-from ..wells import check_wells
+from ..samplesfile import check_samples
 
 
 @dataclass
@@ -57,26 +57,11 @@ def numbered(n: int) -> np.ndarray:
 def read_samples(path) -> Specimens:
     """The samples file: ``sample`` (unique, non-empty) and optional ``prior`` in (0, 1)."""
     table = read_table(path, ["sample"], "samples")
-    check_wells(table)
     f = table.frame
     if len(f) == 0:
         raise InputError("samples file lists no specimen", str(path))
-    blank = np.flatnonzero((f["sample"] == "").to_numpy())
-    if len(blank):
-        raise table.error("empty sample ID", blank[0], "sample")
-    dup = f.duplicated(["sample"]).to_numpy()
-    if dup.any():
-        r = int(np.flatnonzero(dup)[0])
-        raise table.error(f"sample {f['sample'].iat[r]!r} is listed twice", r, "sample")
-    prior = None
-    if "prior" in f.columns:
-        vals, given = table.numbers("prior")
-        bad = given & ~((vals > 0) & (vals < 1))
-        if bad.any():
-            r = int(np.flatnonzero(bad)[0])
-            raise table.error(f"prior {f['prior'].iat[r].strip()!r} must be a probability "
-                              "strictly between 0 and 1", r, "prior")
-        prior = vals
+    prior_column = check_samples(table)
+    prior = None if prior_column is None else prior_column[0]
     return Specimens(f["sample"].to_numpy(dtype=object), prior, str(path),
                      f.reset_index(drop=True))
 

@@ -22,6 +22,8 @@ from functools import lru_cache
 
 import numpy as np
 
+from ..csr import CSR
+
 KINDS = ("retest", "pool", "split", "replicate", "code")
 RETEST, POOL, SPLIT, REPLICATE, CODE = range(5)
 CODE_SIZES = (4, 64)   # positive pools whose undecided members get a code follow-up
@@ -30,22 +32,18 @@ LADDER = (2, 3, 4, 5, 6, 8, 10, 12, 14, 16, 20, 24, 28, 32, 40, 48, 64, 96, 128)
 
 @dataclass(frozen=True)
 class Candidates:
-    """Candidate pools as CSR, with their kind and the read pool they follow up (or -1)."""
+    """Candidate pools (``pools``: int64 specimen indices per candidate), with their kind and the
+    read pool they follow up (or -1)."""
 
-    ptr: np.ndarray        # int64 (n + 1,)
-    members: np.ndarray    # int64 specimen indices
+    pools: CSR
     kind: np.ndarray       # int8 codes into KINDS
     source: np.ndarray     # int64 read pool a split or replicate follows up, else -1
 
     def __len__(self) -> int:
-        return len(self.ptr) - 1
-
-    @property
-    def sizes(self) -> np.ndarray:
-        return np.diff(self.ptr)
+        return len(self.pools)
 
     def members_of(self, c: int) -> np.ndarray:
-        return self.members[self.ptr[c]:self.ptr[c + 1]]
+        return self.pools.row(c)
 
     def uses_material(self) -> np.ndarray:
         """True where reading the candidate draws specimen material (all but replicates)."""
@@ -83,7 +81,7 @@ def generate(run, probability: np.ndarray, undecided: np.ndarray, comps, max_poo
     sizes = pool_sizes(max_pool_size, allowed)
     items: list = []
     # replicates of read pools with an undecided member
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     for t in np.flatnonzero(read):
         mem = run.members(t)
         k = len(mem)
@@ -134,10 +132,5 @@ def generate(run, probability: np.ndarray, undecided: np.ndarray, comps, max_poo
         kind.append(code)
         source.append(src)
         chunks.append(mem)
-    ptr = np.zeros(len(chunks) + 1, dtype=np.int64)
-    if chunks:
-        np.cumsum([len(c) for c in chunks], out=ptr[1:])
-        members = np.concatenate(chunks).astype(np.int64)
-    else:
-        members = np.zeros(0, dtype=np.int64)
-    return Candidates(ptr, members, np.array(kind, dtype=np.int8), np.array(source, dtype=np.int64))
+    return Candidates(CSR.from_rows(chunks), np.array(kind, dtype=np.int8),
+                      np.array(source, dtype=np.int64))

@@ -132,8 +132,9 @@ def select_batch(xt, w, cands, label, comp_size, qtab, n_tests: int, draws_left:
     ``relative_information`` times the first pick's gain.
     """
     n_draws = xt.shape[1]
-    p0, g0 = single_information(xt, w, cands.ptr, cands.members, qtab)
-    linked, n_linked = linked_sizes(cands.ptr, cands.members, label, comp_size)
+    ptr, members = cands.pools.ptr, cands.pools.indices
+    p0, g0 = single_information(xt, w, ptr, members, qtab)
+    linked, n_linked = linked_sizes(ptr, members, label, comp_size)
     material = cands.uses_material() | replicates_use_material
     ok = (g0 > _EPS) & ((linked <= max_linked) | (n_linked == 1))
     heap = [(-float(g0[c]), int(c)) for c in np.flatnonzero(ok)]

@@ -6,6 +6,7 @@ import dataclasses
 import numpy as np
 
 from ..decoders.graph import components
+from ..csr import CSR
 from ..defaults import METHODS, NEGATIVE_BELOW, POSITIVE_ABOVE
 from ..errors import InputError
 from ..validation import (check_choice, check_count, check_nonnegative, check_positive,
@@ -65,7 +66,7 @@ def _volume_left(run, pool_volume) -> np.ndarray | None:
 
 def untested(run) -> np.ndarray:
     """True for specimens in no read pool: a prior alone never decides a specimen, however low."""
-    read = np.repeat((run.n_positive + run.n_negative) > 0, run.pool_size)
+    read = np.repeat(run.pool_read, run.pool_size)
     return np.bincount(run.pool_members[read], minlength=run.n_samples) == 0
 
 
@@ -100,6 +101,49 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     tests while they leave specimens inconclusive. ``exact_memo``: an
     :class:`~bayespool.decoders.exact.ExactMemo` kept across rounds (the closed loop), so components
     drawn before are not enumerated again (the same draws).
+
+    Parameters
+    ----------
+    run : Run
+        The run so far; an empty layout with a samples file plans a first stage.
+    assay : Assay
+        Specificity and Se(k, d).
+    posterior : Posterior, optional
+        The run's decoded posterior.
+    tests : int
+        At most this many pools (one readout each).
+    max_pool_size : int
+        At most this many specimens per pool.
+    seed : int or numpy.random.Generator, optional
+        Random seed of the posterior draws (reproducible plans).
+    n_draws : int
+        Joint posterior draws the information is estimated over.
+
+    Returns
+    -------
+    Plan
+        The planned pools (``to_frame()``: the layout of the next tests, one row per membership).
+
+    Raises
+    ------
+    InputError
+        A bad option (naming the parameter), or an assay that covers no allowed pool size.
+
+    References
+    ----------
+    Expected information gain estimated on joint posterior draws, chosen greedily (Bayesian
+    sequential experimental design; for pooled tests e.g. Cuturi, Teboul & Vert (2020),
+    arXiv:2004.12508).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> assay = bayespool.read_assay("datasets/demo/assay.toml")
+    >>> nxt = bayespool.plan(run, assay, tests=4, seed=1)
+    >>> nxt.n_tests, list(nxt.to_frame().columns[:2])
+    (4, ['pool', 'sample'])
     """
     tests = check_count(tests, "tests", 1)
     max_pool_size = check_count(max_pool_size, "max_pool_size", 1)
@@ -129,12 +173,13 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
                                             rule=rule)
     prob = np.asarray(posterior.probability, dtype=float)
     undecided = np.union1d(posterior.undecided(), np.flatnonzero(untested(run)))
+    calls = posterior.counts()
     notes: list = []
     kmax = max(max_pool_size, int(run.pool_size.max()) if run.n_pools else 1)
     qtab = readout_table(assay, kmax)
     allowed = ~np.isnan(qtab[:, 0])
     if not undecided.size:
-        return _empty(run, True, 0, "decided", notes)
+        return _empty(run, True, 0, "decided", notes, calls)
     if run.n_samples and not allowed[1:max_pool_size + 1].any():
         raise InputError(f"the assay covers no pool size up to {max_pool_size}",
                          run.sources.get("assay"))
@@ -156,24 +201,21 @@ def plan(run, assay, *, posterior=None, tests: int = DEFAULT_TESTS,
     if not len(batch.chosen):
         notes.append("no candidate test is expected to tell anything within the limits "
                      "(material left, pool size, linked group size)")
-        return _empty(run, False, len(undecided), batch.stop, notes)
+        return _empty(run, False, len(undecided), batch.stop, notes, calls)
     chosen = batch.chosen
-    ptr = np.zeros(len(chosen) + 1, dtype=np.int64)
-    np.cumsum(cands.sizes[chosen], out=ptr[1:])
-    members = np.concatenate([cands.members_of(int(c)) for c in chosen])
     if batch.stop == "information" and len(chosen) < tests:
         notes.append(f"planned {len(chosen)} of {tests} tests: the others would tell less than "
                      "the minimum information")
     return Plan(run.sample_ids, np.array(fresh_pool_ids(run.pool_ids, len(chosen), id_prefix),
                                          dtype=object),
-                ptr, members, cands.kind[chosen], cands.source[chosen],
+                cands.pools.take(chosen), cands.kind[chosen], cands.source[chosen],
                 batch.positive_probability, batch.gain, batch.total_information,
-                len(undecided), False, run.pool_ids, batch.stop, xt.shape[1], notes)
+                len(undecided), False, run.pool_ids, batch.stop, xt.shape[1], notes, calls)
 
 
-def _empty(run, decided: bool, undecided: int, stop: str, notes: list) -> Plan:
+def _empty(run, decided: bool, undecided: int, stop: str, notes: list, calls: dict) -> Plan:
     z = np.zeros(0)
-    return Plan(run.sample_ids, np.zeros(0, dtype=object), np.zeros(1, dtype=np.int64),
-                np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int8),
+    return Plan(run.sample_ids, np.zeros(0, dtype=object), CSR.from_rows([]),
+                np.zeros(0, dtype=np.int8),
                 np.zeros(0, dtype=np.int64), z, z, 0.0, undecided, decided, run.pool_ids, stop,
-                0, notes)
+                0, notes, calls)

@@ -4,8 +4,9 @@
 whatever it is given: the caution banner always; the run summary (from ``run``); the assay model and
 its sensitivity curve (``assay``); the decoder, its convergence and diagnostics, the calls table, the
 plate map or ranked chart, the ambiguity groups and the number of positives (``posterior``); the
-planned next pools (``plan``, a DataFrame in the layout format plus the planner's columns); the
-calibration (``calibration``, a fit result with ``summary()`` and a ``cells`` DataFrame).
+planned next pools (``plan``, the :class:`~bayespool.planning.Plan`; :func:`build_report`, the
+renderer, reads its table in the layout format plus the planner's columns); the calibration
+(``calibration``, a fit result with ``summary()`` and a ``cells`` DataFrame).
 
 The page loads nothing: CSS, the small sorting script and the figures (inline SVG, drawn with
 matplotlib on the Agg canvas) are in the file, and its Content-Security-Policy forbids any fetch.
@@ -116,9 +117,65 @@ def fitted_prevalence(calibration):
 
 def write_report(path, *, run=None, assay=None, posterior=None, plan=None, calibration=None,
                  title=None, **options) -> Path:
-    """Write the report to ``path`` atomically (see :func:`build_report` for ``options``); a path
-    that is one of the run's input files is refused."""
+    """Write the offline HTML report of results to ``path``, atomically.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The HTML file to write; one of the run's input files is refused.
+    run : Run, optional
+        The run (its summary, the plate map and the audit trail of its input files).
+    assay : Assay, optional
+        The assay model and its sensitivity curve.
+    posterior : Posterior, optional
+        The result of :func:`bayespool.decode`: calls, diagnostics, ambiguity, expectations.
+    plan : Plan, optional
+        The result of :func:`bayespool.plan`: the planned next pools.
+    calibration : Calibration, optional
+        The result of :func:`bayespool.calibrate`.
+    title : str, optional
+        The page title (default: "bayespool run report").
+    **options
+        ``notes`` (extra lines for the run summary), ``controls`` (ControlCheck), ``worklist``
+        (Worklist), ``audit`` (Audit), ``prevalence`` (PrevalenceEstimates), ``created``.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+
+    Raises
+    ------
+    InputError
+        ``plan`` is not a Plan, the path is an input or lies in no existing folder, or there is
+        nothing to report.
+
+    References
+    ----------
+    The page is one HTML5 document (WHATWG HTML Living Standard) with inline SVG and a
+    Content-Security-Policy (W3C CSP Level 3) that forbids every fetch, so it opens offline.
+
+    Examples
+    --------
+    >>> import bayespool, tempfile, pathlib
+    >>> run = bayespool.read_run("datasets/demo/layout.csv", "datasets/demo/readouts.csv",
+    ...                          "datasets/demo/samples.csv")
+    >>> assay = bayespool.read_assay("datasets/demo/assay.toml")
+    >>> posterior = bayespool.decode(run, assay)
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> bayespool.write_report(folder / "run.html", run=run, assay=assay,
+    ...                        posterior=posterior).name
+    'run.html'
+    """
+    from ..errors import InputError
     from ..io import check_output_path, check_outputs, write_text
+    from ..result_protocol import file_frame
+    if plan is not None:
+        from ..planning import Plan
+        if not isinstance(plan, Plan):
+            raise InputError(f"plan must be a Plan (the result of bayespool.plan), got "
+                             f"{type(plan).__name__}", parameters=("plan",))
+        plan = file_frame(plan.to_frame())
     inputs = dict(run.sources if run is not None else {})
     audit = options.get("audit")
     inputs.update({f["role"]: f["name"] for f in (audit.inputs if audit is not None else [])})

@@ -12,6 +12,7 @@ import pandas as pd
 from . import formatting as fmt
 from .escape import attr, text
 from .legend import legend
+from ..result_protocol import file_frame
 from .markup import el, section
 from .palette import styles
 from .plate import n_placed, place, plate_map
@@ -24,7 +25,7 @@ LEAD_COLUMNS = ("sample", "probability", "call", "prior")
 def pool_ids_column(run, n: int) -> np.ndarray:
     """Each specimen's pools as text (``P1, P7``), the read ones first."""
     out = np.full(n, "", dtype=object)
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     for i in range(min(n, run.n_samples)):
         pools = run.pools_of(i)
         if len(pools):
@@ -36,7 +37,7 @@ def pool_ids_column(run, n: int) -> np.ndarray:
 def calls_frame(posterior, run=None) -> pd.DataFrame:
     """The posterior table plus an input-order column, each specimen's pool IDs and, when known,
     plate and well."""
-    frame = posterior.to_frame()
+    frame = file_frame(posterior.to_frame())
     frame.insert(0, "order", np.arange(1, len(frame) + 1))
     if run is not None and run.n_samples == len(frame):
         at = list(frame.columns).index("pools") + 1 if "pools" in frame.columns else len(frame.columns)

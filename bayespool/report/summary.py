@@ -40,12 +40,12 @@ def run_section(run, notes=(), fitted_prevalence: Mapping | None = None) -> str:
     """Specimens, pools, readouts, input files and notes. ``fitted_prevalence`` (estimate, lower,
     upper of a calibration from these runs) replaces the prior line, which would otherwise show
     the default prevalence the fit did not use."""
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     in_read = np.zeros(run.n_samples, bool)
     if run.n_memberships:
         owner = np.repeat(read, run.pool_size)
         in_read[run.pool_members[owner]] = True
-    replicated = int(np.sum((run.n_positive + run.n_negative) > 1))
+    replicated = int(np.sum(run.pool_reads > 1))
     items = [
         ("Specimens", text(fmt.number(run.n_samples)) +
          (f' <span class="muted">({fmt.number(int((~in_read).sum()))} in no pool with a readout: '
@@ -176,7 +176,7 @@ def assay_section(assay, run=None, observed=None, shown_elsewhere=()) -> str:
                    fit_html(details), class_="fit")
     sizes = None
     if run is not None:
-        read = (run.n_positive + run.n_negative) > 0
+        read = run.pool_read
         sizes = np.unique(run.pool_size[read]) if read.any() else None
     body += el("figure", sensitivity_curve(assay, sizes, observed) + el(
         "figcaption", "Probability that a pool reads positive against its dilution factor k/d (pool "

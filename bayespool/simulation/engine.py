@@ -13,7 +13,6 @@ prints it before a long study). The pilot's cohorts are part of the results, not
 from __future__ import annotations
 
 import math
-import sys
 import time
 import uuid
 from contextlib import contextmanager
@@ -22,6 +21,7 @@ from dataclasses import dataclass
 import pandas as pd
 
 from ..errors import InputError
+from ..progress import progress_bar
 from .cells import Cell, play
 
 PILOT_SECONDS = 2.0     # in-process pilot budget per study (at least one cohort per cell)
@@ -116,16 +116,16 @@ def run_blocks(cells: list[Cell], *, client=None, progress=False, on_estimate=No
         left = sum(r * (c.runs - s) for c, s, r in zip(cells, nxt, rate))
         on_estimate(Estimate(left / workers, total, piloted, workers, client is not None))
     tasks = _tasks(cells, nxt, rate, workers)
-    bar, own = _progress_bar(progress, total)
+    # a bar when asked (cohorts done of total, time left); ``progress`` may be a caller's bar
+    bar = progress_bar(False if progress is None else progress, total, desc="cohorts", unit="run")
+    own = bar is not progress
     try:
-        if bar is not None:
-            bar.update(piloted)
+        bar.update(piloted)
         if client is None:
             results = []
             for i, a, b in tasks:
                 results.append(play(cells[i], a, b))
-                if bar is not None:
-                    bar.update(b - a)
+                bar.update(b - a)
         else:
             results = _on_cluster(client, cells, tasks, bar)
     finally:
@@ -149,23 +149,11 @@ def _on_cluster(client, cells, tasks, bar):
         for fut in as_completed(futures):
             if fut.status == "error":
                 fut.result()  # raises the task's error here
-            if bar is not None:
-                bar.update(size[fut.key])
+            bar.update(size[fut.key])
         return client.gather(futures)
     except BaseException:
         client.cancel(futures, force=True)
         raise
-
-
-def _progress_bar(progress, total: int):
-    """A tqdm bar on stderr when asked (cohorts done of total, time left); ``progress`` may be an
-    existing bar to advance."""
-    if progress is None or progress is False:
-        return None, False
-    if hasattr(progress, "update"):
-        return progress, False
-    from tqdm import tqdm
-    return tqdm(total=total, desc="cohorts", unit="run", file=sys.stderr, leave=False), True
 
 
 CONNECT_SECONDS = 10

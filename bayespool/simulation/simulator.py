@@ -17,6 +17,7 @@ import pandas as pd
 
 from ..assay import DEFAULT_ASSAY, Assay
 from ..errors import InputError
+from ..result_protocol import Result
 from ..validation import check_count, check_open_probability, seed_sequence
 from .characteristics import ORDER, OperatingCharacteristics
 from ..design.specimens import specimens
@@ -27,9 +28,20 @@ from .protocol import Protocol
 from .protocols import accepted_options, make_protocol
 
 
-@dataclass
-class Simulation:
-    """One protocol at one setting: operating characteristics, per-run counts, closed forms."""
+@dataclass(repr=False)
+class Simulation(Result):
+    """One protocol at one setting: operating characteristics, per-run counts, closed forms.
+
+    ``to_frame()`` has one row per characteristic (index ``characteristic``): the estimate and its
+    Monte Carlo standard error; ``runs_frame`` keeps the per-run counts.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> sim = bayespool.simulate("individual", 30, prevalence=0.1, runs=10, seed=1)
+    >>> float(sim.to_frame().loc["tests_per_sample", "estimate"])
+    1.0
+    """
 
     scheme: str
     parameters: dict
@@ -42,7 +54,18 @@ class Simulation:
     notes: list = field(default_factory=list)
     setting: dict = field(default_factory=dict)  # what a study sweeps besides the parameters
 
-    def to_dict(self) -> dict:
+    def to_frame(self) -> pd.DataFrame:
+        return self.characteristics.table().set_index("characteristic")
+
+    def __str__(self) -> str:
+        from .text import simulation_text
+        return simulation_text(self)
+
+    def _brief(self) -> str:
+        return (f"{self.scheme!r}, {self.characteristics.runs} runs of "
+                f"{self.characteristics.specimens} specimens, prevalence={self.prevalence}")
+
+    def summary(self) -> dict:
         out = {"scheme": self.scheme, **self.parameters, "prevalence": self.prevalence,
                "assay": self.assay.describe(), "seed": self.seed}
         out.update(self.characteristics.to_dict())
@@ -92,6 +115,36 @@ def simulate(scheme, samples, *, prevalence: float | None = None, assay: Assay |
         A bar on stderr (cohorts done of total, time left).
     on_estimate : callable, optional
         Called with the pilot's :class:`~bayespool.simulation.engine.Estimate` before the study.
+    samples : int, str or Specimens
+        Specimens per cohort, or a samples file whose ``prior`` column is used.
+    prevalence : float, optional
+        Prior of every specimen (without priors in the samples file).
+    assay : Assay, optional
+        The assay that draws the readouts (default: constant Se 0.95, Sp 0.99).
+    runs : int
+        Simulated cohorts.
+
+    Returns
+    -------
+    Simulation
+        The operating characteristics with Monte Carlo standard errors (``to_frame()`` indexed by
+        characteristic) and the closed forms where known.
+
+    Raises
+    ------
+    InputError
+        An unknown scheme or a bad option (naming the parameter).
+
+    References
+    ----------
+    Closed forms beside the estimates: Dorfman (1943); Kim et al. (2007), Biometrics 63(4).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> sim = bayespool.simulate("dorfman", 40, prevalence=0.05, pool_size=4, runs=20, seed=1)
+    >>> sim.to_frame().index[:3].tolist()
+    ['tests_per_sample', 'sensitivity', 'specificity']
     """
     cohort = samples if isinstance(samples, Cohort) else make_cohort(samples, prevalence)
     assay = DEFAULT_ASSAY if assay is None else assay
@@ -101,9 +154,20 @@ def simulate(scheme, samples, *, prevalence: float | None = None, assay: Assay |
     return _simulation(cell, frame, seed)
 
 
-@dataclass
-class Sweep:
-    """A study: simulations over schemes and settings (one cell each), and their table."""
+@dataclass(repr=False)
+class Sweep(Result):
+    """A study: simulations over schemes and settings (one cell each), and their table.
+
+    ``to_frame()`` is ``table`` with one row per setting (index ``setting``); ``summary()`` is
+    ``{"points": [...]}``, one simulation's summary (plus its setting) per point.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> study = bayespool.sweep("individual", 30, prevalences=[0.05, 0.1], runs=10, seed=1)
+    >>> len(study.summary()["points"]), study.to_frame().index.name
+    (2, 'setting')
+    """
 
     results: list
 
@@ -126,8 +190,23 @@ class Sweep:
             rows.append(row)
         return pd.DataFrame(rows)
 
-    def to_dict(self) -> list:
-        return [{**s.to_dict(), **s.setting} for s in self.results]
+    def to_frame(self) -> pd.DataFrame:
+        frame = self.table
+        frame.index.name = "setting"
+        return frame
+
+    def summary(self) -> dict:
+        return {"points": [{**s.summary(), **s.setting} for s in self.results]}
+
+    def __str__(self) -> str:
+        from .text import simulation_text, sweep_text
+        if len(self.results) == 1:
+            return simulation_text(self.results[0])
+        return sweep_text(self)
+
+    def _brief(self) -> str:
+        schemes = ", ".join(dict.fromkeys(s.scheme for s in self.results))
+        return f"{len(self.results)} setting(s) of {schemes}"
 
 
 def _as_list(value):
@@ -181,6 +260,29 @@ def sweep(scheme, samples, *, prevalences=None, pool_sizes=None, assay: Assay | 
         whatever the scheme, pool size, assay or thresholds (common random numbers, so
         differences between schemes are measured on the same specimens). All cells' cohorts go
         out as one batch of tasks.
+
+    Returns
+    -------
+    Sweep
+        One simulation per setting (``to_frame()``: one row per setting).
+
+    Raises
+    ------
+    InputError
+        A scheme that is not registered, or a swept value out of range (naming the parameter).
+
+    References
+    ----------
+    Common random numbers for comparing simulated systems (e.g. Law & Kelton, Simulation Modeling
+    and Analysis; from memory); closed forms as in :func:`simulate`.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> study = bayespool.sweep(["dorfman", "individual"], 40, prevalences=[0.02, 0.05],
+    ...                         pool_size=4, runs=10, seed=1)
+    >>> len(study.to_frame()), sorted(set(study.to_frame()["scheme"]))
+    (4, ['dorfman', 'individual'])
     """
     schemes = _as_list(scheme)
     if not schemes:

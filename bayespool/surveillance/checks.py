@@ -1,5 +1,5 @@
-"""Checks of the surveillance functions' arguments; errors name the Python parameter (the command
-line rewords them with its flags)."""
+"""Checks of the surveillance functions' arguments; errors name the Python parameter (marked, so
+the command line shows its flag instead)."""
 from __future__ import annotations
 
 import math
@@ -12,9 +12,9 @@ def check_level(level, name: str = "level") -> float:
     try:
         v = float(level)
     except (TypeError, ValueError):
-        raise InputError(f"{name} must be a number strictly between 0 and 1, got {level!r}") from None
+        raise InputError(f"`{name}` must be a number strictly between 0 and 1, got {level!r}") from None
     if not 0.0 < v < 1.0:
-        raise InputError(f"{name} must be strictly between 0 and 1, got {level!r}")
+        raise InputError(f"`{name}` must be strictly between 0 and 1, got {level!r}")
     return v
 
 
@@ -23,9 +23,9 @@ def check_positive(value, name: str) -> float:
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise InputError(f"{name} must be a positive number, got {value!r}") from None
+        raise InputError(f"`{name}` must be a positive number, got {value!r}") from None
     if not (math.isfinite(v) and v > 0):
-        raise InputError(f"{name} must be a positive number, got {value!r}")
+        raise InputError(f"`{name}` must be a positive number, got {value!r}")
     return v
 
 
@@ -34,7 +34,7 @@ def check_beta_prior(prior, name: str = "prior") -> tuple[float, float]:
     try:
         a, b = (float(x) for x in prior)
     except (TypeError, ValueError):
-        raise InputError(f"{name} must be two positive numbers (a, b), got {prior!r}") from None
+        raise InputError(f"`{name}` must be two positive numbers (a, b), got {prior!r}") from None
     if not (a > 0 and b > 0 and math.isfinite(a) and math.isfinite(b)):
-        raise InputError(f"{name} must be two positive numbers (a, b), got {prior!r}")
+        raise InputError(f"`{name}` must be two positive numbers (a, b), got {prior!r}")
     return a, b

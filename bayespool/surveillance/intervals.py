@@ -95,16 +95,16 @@ def _exact_interval(lik: PooledLikelihood, level: float):
     from ..calibration.intervals import clopper_pearson
     cells = lik.cells
     if not cells.equal_sizes():
-        raise InputError("interval 'exact' needs pools of one size (Hepworth 1996); these pools "
+        raise InputError("`interval` 'exact' needs pools of one size (Hepworth 1996); these pools "
                          f"have sizes {', '.join(str(int(k)) for k in np.unique(cells.size))}: "
                          "use 'skew-score', 'score', 'likelihood' or 'bayes'")
     if not cells.single_reads():
-        raise InputError("interval 'exact' needs one readout per pool; some pools have "
+        raise InputError("`interval` 'exact' needs one readout per pool; some pools have "
                          "replicate readouts: use 'skew-score', 'score', 'likelihood' or 'bayes'")
     k = int(cells.size[0])
     theta = lik.theta(k)
     if not np.all(np.diff(theta) >= 0) or theta[-1] <= theta[0]:
-        raise InputError("interval 'exact' needs P(pool positive) to rise with the number of "
+        raise InputError("`interval` 'exact' needs P(pool positive) to rise with the number of "
                          "positive members; this assay's does not")
     lo, up = clopper_pearson(cells.positive_pools(), cells.pools, level)
     return invert_positive_probability(lik, k, float(lo)), invert_positive_probability(lik, k, float(up))
@@ -181,5 +181,5 @@ def interval(lik: PooledLikelihood, method: str, level: float, estimate: float,
         return _exact_interval(lik, level)
     if method == "bayes":
         return _bayes_interval(lik, level, prior)
-    raise InputError(f"interval must be one of {', '.join(METHODS)}, got {method!r}")
+    raise InputError(f"`interval` must be one of {', '.join(METHODS)}, got {method!r}")
 

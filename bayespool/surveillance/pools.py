@@ -47,9 +47,9 @@ class PooledData:
                 if self.table is not None:
                     raise InputError(f"no column {c!r} to group by (grouping columns: {have})",
                                      self.source, 1, c)
-                raise InputError(f"by: no column {c!r} to group by (grouping columns: {have})")
+                raise InputError(f"`by`: no column {c!r} to group by (grouping columns: {have})")
         if len(set(by)) != len(by):
-            raise InputError(f"by names a column twice: {', '.join(by)}")
+            raise InputError(f"`by` names a column twice: {', '.join(by)}")
         return by
 
     def first_line_of(self, pool: str) -> int | None:
@@ -129,6 +129,22 @@ def read_pools(path) -> PooledData:
     Returns
     -------
     PooledData
+
+    Raises
+    ------
+    InputError
+        A bad file, naming file, line and column.
+
+    References
+    ----------
+    RFC 4180 (comma-separated values); one row per readout as in Thompson (1962), Biometrics 18.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> pools = bayespool.read_pools("datasets/surveillance/pools.csv")
+    >>> type(pools).__name__
+    'PooledData'
     """
     return _from_table(read_table(path, list(REQUIRED), "pools"))
 
@@ -149,7 +165,7 @@ def pools_from_run(run, group_columns=None) -> PooledData:
     readout is left out.
     """
     sizes = run.pool_size
-    tested = (run.n_positive + run.n_negative) > 0
+    tested = run.pool_read
     frame = pd.DataFrame({"pool": run.pool_ids, "size": sizes, "n_positive": run.n_positive,
                           "n_negative": run.n_negative})
     groups = []

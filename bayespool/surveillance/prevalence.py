@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError
+from ..result_protocol import Result
 from .checks import check_beta_prior, check_level, check_positive
 from .difference import Difference, difference
 from .estimators import (bias_corrected, clipped_note, maximum_likelihood,
@@ -48,8 +49,8 @@ class GroupEstimate:
         return " / ".join(str(v) for v in self.group.values()) if self.group else ALL
 
 
-@dataclass(eq=False)
-class PrevalenceEstimates:
+@dataclass(eq=False, repr=False)
+class PrevalenceEstimates(Result):
     """Per-group prevalence estimates from pooled readouts.
 
     ``to_frame()`` is indexed by the grouping columns; estimates there (and in ``summary()``) are
@@ -123,9 +124,9 @@ class PrevalenceEstimates:
         lines.extend(f"note: {n}" for n in self.notes)
         return "\n".join(lines)
 
-    def __repr__(self) -> str:
-        return (f"PrevalenceEstimates({len(self.groups)} group(s), interval={self.interval!r}, "
-                f"level={self.level:g}, per={self.per:g})")
+    def _brief(self) -> str:
+        return (f"{len(self.groups)} group(s), interval={self.interval!r}, "
+                f"level={self.level:g}, per={self.per:g}")
 
 
 def _json_number(v: float):
@@ -181,11 +182,30 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str = "skew-score
     Returns
     -------
     PrevalenceEstimates
+
+    Raises
+    ------
+    InputError
+        A bad option (naming the parameter) or pools without readouts.
+
+    References
+    ----------
+    Thompson (1962), Biometrics 18; Walter, Hildreth & Beaty (1980), Am. J. Epidemiol. 112;
+    Hepworth (1996), Biometrics 52; Hepworth & Biggerstaff (2017), JABES 22; Tu, Litvak & Pagano
+    (1995), Statistics in Medicine 14.
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> pools = bayespool.read_pools("datasets/surveillance/pools.csv")
+    >>> est = bayespool.estimate_prevalence(pools, by=["site"], per=1000)
+    >>> est.to_frame().index.tolist()
+    ['creek', 'meadow']
     """
     data = pools if isinstance(pools, PooledData) else pools_from_frame(pools)
     by = data.check_by(by)
     if interval not in METHODS:
-        raise InputError(f"interval must be one of {', '.join(METHODS)}, got {interval!r}")
+        raise InputError(f"`interval` must be one of {', '.join(METHODS)}, got {interval!r}")
     level, per, prior = check_level(level), check_positive(per, "per"), check_beta_prior(prior)
     if not len(data.frame):
         raise InputError("no pool has a readout", data.source)
@@ -215,7 +235,7 @@ def _interval(lik, method, level, estimate, prior, key):
         return interval(lik, method, level, estimate, prior)
     except InputError as exc:
         where = f" (group {' / '.join(map(str, key.values()))})" if key else ""
-        raise InputError(exc.message + where) from None
+        raise InputError(exc.message + where, parameters=exc.parameters) from None
 
 
 def _difference(liks: dict, by: list, compare, level: float, per: float):
@@ -229,9 +249,9 @@ def _difference(liks: dict, by: list, compare, level: float, per: float):
         compare = compare[0].split(",")
     compare = [str(c).strip() for c in compare]
     if len(compare) != 2 or compare[0] == compare[1]:
-        raise InputError(f"compare must name two different groups, got {', '.join(compare)}")
+        raise InputError(f"`compare` must name two different groups, got {', '.join(compare)}")
     for c in compare:
         if c not in liks:
-            raise InputError(f"compare: no group {c!r} (groups: {', '.join(liks)})")
+            raise InputError(f"`compare`: no group {c!r} (groups: {', '.join(liks)})")
     (la, ga), (lb, gb) = liks[compare[0]], liks[compare[1]]
     return difference(la, lb, ga.mle, gb.mle, level=level, names=compare, per=per)

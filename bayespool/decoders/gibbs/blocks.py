@@ -5,7 +5,9 @@ prevalence when it is unknown. While recording, each sweep adds to the Rao-Black
 histogram of the number of positives, and every ``bm_stride`` / ``dr_stride`` sweeps a row goes into
 the trace buffers (see backend.py; the driver compacts them before
 they fill, and a full buffer is never written past). Chains own their random streams, so results do not depend on the
-thread that runs a chain.
+thread that runs a chain. Each move's kernel (``site_sweep``, ``swap_sweep``, ``draw_prevalence``)
+lives in the move's module and is called here by name: a parallel, cached numba loop cannot take
+kernels as arguments without compiling anew for each.
 """
 from __future__ import annotations
 

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ...run import csr
+from ...csr import csr
 
 PENALTY = 1.0e6  # log-weight of one broken hard constraint
 
@@ -41,7 +41,7 @@ class GibbsModel:
     @classmethod
     def build(cls, run, lik_ptr, loglik, specimens=None, shared_prevalence: bool = False):
         n, T = run.n_samples, run.n_pools
-        read = (run.n_positive + run.n_negative) > 0
+        read = run.pool_read
         specimens = np.arange(n) if specimens is None else np.asarray(specimens, dtype=np.int64)
         owner = np.repeat(np.arange(T, dtype=np.int64), run.pool_size)
         keep = read[owner]

@@ -93,7 +93,6 @@ class PoolSwapMove:
     """Swap a positive and a negative member of each positive pool, ``rounds`` times per sweep."""
 
     name = "pool-swap"
-    kernel = staticmethod(swap_sweep)
 
     def __init__(self, rounds: int = 1):
         if int(rounds) < 1:

@@ -43,7 +43,6 @@ class PrevalenceMove:
     """Draw the shared prevalence from its Beta full conditional once per sweep."""
 
     name = "prevalence"
-    kernel = staticmethod(draw_prevalence)
 
     def __init__(self, a: float = 1.0, b: float = 1.0):
         self.a, self.b = parse_beta_prior((a, b))

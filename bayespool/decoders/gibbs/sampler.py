@@ -23,12 +23,12 @@ status does, so its error shows what was not explored.
 """
 from __future__ import annotations
 
-import sys
 import time
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from ...progress import progress_bar
 from ..exact import impossible
 from .backend import Trace
 from .blocks import run_block
@@ -148,7 +148,8 @@ class GibbsSampler:
         draw_rows = int(max(2, min(max_draws // C, (self.budget // 2) // max(1, C * n_order))))
         notes = []
         t0 = time.perf_counter()
-        bar = _progress(progress, int(warmup) + int(max_sweeps))
+        bar = progress_bar(progress, int(warmup) + int(max_sweeps), desc="gibbs", unit="sweep",
+                           delay=2.0)
 
         # warm-up, then make sure every chain sits in an allowed state
         scratch = self._trace(np.zeros(0, np.int64), 2)
@@ -400,19 +401,3 @@ def _nanmin(a):
     return float(a.min()) if len(a) else None
 
 
-class _NoBar:
-    def update(self, n):
-        pass
-
-    def close(self):
-        pass
-
-
-def _progress(progress, total):
-    """A tqdm bar on stderr when it is a terminal (or when asked), shown after two seconds."""
-    if progress is None:
-        progress = sys.stderr.isatty()
-    if not progress:
-        return _NoBar()
-    from tqdm import tqdm
-    return tqdm(total=total, desc="gibbs", unit="sweep", file=sys.stderr, delay=2.0, leave=False)

@@ -60,7 +60,6 @@ class SingleSiteMove:
     """Gibbs update of every sampled specimen once per sweep (the move that carries the marginals)."""
 
     name = "single-site"
-    kernel = staticmethod(site_sweep)
 
     def __repr__(self) -> str:
         return "SingleSiteMove()"

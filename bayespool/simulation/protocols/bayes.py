@@ -106,7 +106,7 @@ class BayesianLoop(Protocol):
         n = tester.n
         ids = pd.DataFrame({"sample": [f"S{i}" for i in range(n)]})
         run = Run.from_frames(pd.DataFrame({"pool": [], "sample": []}), None, ids)
-        run.prior = np.broadcast_to(np.asarray(prior, dtype=float), (n,)).copy()
+        run = run.with_prior(prior)
         rng = np.random.default_rng(tester.rng.integers(2**63) if self.seed is None else self.seed)
         for _ in range(self.max_rounds):
             post = self._decode(run, tester, rng)
@@ -123,14 +123,7 @@ class BayesianLoop(Protocol):
             if nxt.n_tests == 0:
                 break
             results = tester.read_round(nxt.pool_ptr, nxt.pool_members)
-            before, frame = run.n_pools, run.readout_ct
-            run = nxt.extend(run, results)
-            if tester.last_ct is not None:  # a [ct] assay: decode the Cts too
-                new = pd.DataFrame({"pool": before + np.arange(len(results)),
-                                    "result": np.asarray(results, dtype=np.int64),
-                                    "ct": tester.last_ct})
-                run.readout_ct = new if frame is None else pd.concat([frame, new],
-                                                                     ignore_index=True)
+            run = nxt.extend(run, results, ct=tester.last_ct)  # last_ct: a [ct] assay's Cts
         else:
             post = self._decode(run, tester, rng)
         self.last_posterior = post

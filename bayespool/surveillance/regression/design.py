@@ -63,20 +63,20 @@ def design_matrix(run, formula: str) -> Design:
     if text.startswith("~"):
         text = text[1:].strip()
     if not text:
-        raise InputError("formula is empty: give the covariates, e.g. 'age + C(site)'")
+        raise InputError("`formula` is empty: give the covariates, e.g. 'age + C(site)'")
     source = run.sources.get("samples")
     sm = run.samples
     if sm is None:
-        raise InputError("formula needs a samples file with the covariates of every sample")
+        raise InputError("`formula` needs a samples file with the covariates of every sample")
     try:
         spec = Formula(text)
         needed = sorted(spec.required_variables)
     except (FormulaicError, SyntaxError, ValueError) as exc:
-        raise InputError(f"formula {formula!r} cannot be read: {_first_line(exc)}") from None
+        raise InputError(f"`formula` {formula!r} cannot be read: {_first_line(exc)}") from None
     header = list(sm.columns)
     for v in needed:
         if v not in header:
-            raise InputError(f"formula uses {v!r}, which is not a column of the samples file "
+            raise InputError(f"`formula` uses {v!r}, which is not a column of the samples file "
                              f"(columns: {', '.join(header)})", source, 1, v)
     have = np.zeros(run.n_samples, dtype=bool)
     have[sm.index.to_numpy()] = True
@@ -95,12 +95,12 @@ def design_matrix(run, formula: str) -> Design:
     try:
         mm = spec.get_model_matrix(data, na_action="raise")
     except Exception as exc:  # the formula library reports evaluation problems in its own types
-        raise InputError(f"formula {formula!r} cannot be evaluated: {_first_line(exc)}") from None
+        raise InputError(f"`formula` {formula!r} cannot be evaluated: {_first_line(exc)}") from None
     X = np.asarray(mm, dtype=float)
     if X.shape[0] != run.n_samples:  # pragma: no cover - na_action="raise" keeps every row
-        raise InputError("formula dropped rows of the samples file")
+        raise InputError("`formula` dropped rows of the samples file")
     terms = [str(c) for c in mm.columns]
     if np.linalg.matrix_rank(X) < X.shape[1]:
-        raise InputError(f"formula {formula!r} gives columns that are not linearly independent "
+        raise InputError(f"`formula` {formula!r} gives columns that are not linearly independent "
                          f"({', '.join(terms)}): the coefficients cannot be told apart")
     return Design(X, terms, text)

@@ -36,12 +36,12 @@ METHODS = ("auto", "exact", "gibbs")
 
 def _check(link, method, level, max_iter):
     if link not in links.LINKS:
-        raise InputError(f"link must be one of {', '.join(links.LINKS)}, got {link!r}")
+        raise InputError(f"`link` must be one of {', '.join(links.LINKS)}, got {link!r}")
     if method not in METHODS:
-        raise InputError(f"method must be one of {', '.join(METHODS)}, got {method!r}")
+        raise InputError(f"`method` must be one of {', '.join(METHODS)}, got {method!r}")
     level = check_level(level)
     if isinstance(max_iter, bool) or not isinstance(max_iter, (int, np.integer)) or max_iter < 1:
-        raise InputError(f"max_iter must be a whole number >= 1, got {max_iter!r}")
+        raise InputError(f"`max_iter` must be a whole number >= 1, got {max_iter!r}")
     return level
 
 
@@ -144,18 +144,39 @@ def fit_regression(run, assay, *, formula: str, link: str = "logit", method: str
     Returns
     -------
     RegressionFit
+
+    Raises
+    ------
+    InputError
+        A bad formula or option (naming the parameter), or readouts the assay makes impossible.
+
+    References
+    ----------
+    Vansteelandt, Goetghebeur & Verstraeten (2000), Biometrics 56; Xie (2001), Statistics in
+    Medicine 20 (EM); McMahan, Tebbs, Hanson & Bilder (2017), Biometrics 73(4).
+
+    Examples
+    --------
+    >>> import bayespool
+    >>> run = bayespool.read_run("datasets/surveillance/layout.csv",
+    ...                          "datasets/surveillance/readouts.csv",
+    ...                          "datasets/surveillance/samples.csv")
+    >>> fit = bayespool.fit_regression(run, bayespool.read_assay("datasets/surveillance/assay.toml"),
+    ...                                formula="age + C(exposed)")
+    >>> fit.to_frame().index.tolist()
+    ['Intercept', 'age', 'C(exposed)[T.yes]']
     """
     level = _check(link, method, level, max_iter)
     design = design_matrix(run, formula)
     tested = np.zeros(run.n_samples, dtype=bool)
-    read = (run.n_positive + run.n_negative) > 0
+    read = run.pool_read
     tested[run.pool_members[np.repeat(read, run.pool_size)]] = True
     if not tested.any():
         raise InputError("no sample is in a pool with a readout: nothing to fit",
                          run.sources.get("readouts"))
     X = design.X
     if np.linalg.matrix_rank(X[tested]) < X.shape[1]:
-        raise InputError(f"formula {formula!r}: over the tested samples the columns "
+        raise InputError(f"`formula` {formula!r}: over the tested samples the columns "
                          f"{', '.join(design.terms)} are not linearly independent (a category "
                          "with no tested sample?)")
     notes = []
@@ -167,7 +188,7 @@ def fit_regression(run, assay, *, formula: str, link: str = "logit", method: str
             notes.append(f"a group of {estep.largest_group} linked samples is above the exact "
                          f"limit of {EXACT_LIMIT}: Monte Carlo EM with the Gibbs sampler")
     elif method == "exact" and not estep.feasible():
-        raise InputError(f"method 'exact': a group of {estep.largest_group} samples linked "
+        raise InputError(f"`method` 'exact': a group of {estep.largest_group} samples linked "
                          f"through shared pools is above the limit of {EXACT_LIMIT}; use "
                          "'gibbs' or 'auto'")
     monte_carlo = None

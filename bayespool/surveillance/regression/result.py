@@ -8,11 +8,13 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ...result_protocol import Result
+
 COLUMNS = ["term", "estimate", "std_error", "lower", "upper"]
 
 
-@dataclass(eq=False)
-class RegressionFit:
+@dataclass(eq=False, repr=False)
+class RegressionFit(Result):
     """Coefficients of individual risk on covariates fitted from pooled readouts.
 
     ``estimate`` and ``covariance`` are on the link scale, in the order of ``terms`` (the formula
@@ -111,6 +113,6 @@ class RegressionFit:
         lines.extend(f"note: {n}" for n in self.notes)
         return "\n".join(lines)
 
-    def __repr__(self) -> str:
-        return (f"RegressionFit({len(self.terms)} terms, link={self.link!r}, "
-                f"method={self.method!r}, samples={self.fitted_samples})")
+    def _brief(self) -> str:
+        return (f"{len(self.terms)} terms, link={self.link!r}, "
+                f"method={self.method!r}, samples={self.fitted_samples}")
