@@ -22,7 +22,8 @@ from ..decisions import DecisionRule
 from ..defaults import METHODS
 from ..errors import InputError
 from ..run import Run
-from .bp import DAMPING, MAX_SWEEPS, TOLERANCE, check_bp_options, decode_bp
+from .bp import (DAMPING, MAX_SWEEPS, TOLERANCE, BPResult, check_bp_options, decode_bp,
+                 finite_or_none)
 from .counts import count_distribution
 from .exact import EXACT_LIMIT, check_component_sizes, decode_exact, impossible
 from .graph import Components, components
@@ -119,8 +120,9 @@ class DecodedPart:
     draws: np.ndarray | None = None
     unconverged: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
     converged: bool | None = None  # None: the notion does not apply (exact enumeration)
-    diagnostics: dict = field(default_factory=dict)
+    diagnostics: dict = field(default_factory=dict)  # for the posterior's diagnostics (JSON)
     warnings: list = field(default_factory=list)
+    bp: BPResult | None = None  # belief propagation's own result (sweeps, residual, tolerance)
 
 
 def _samples_of(comps: Components, selected: np.ndarray) -> np.ndarray:
@@ -147,7 +149,7 @@ def _bp_part(problem: DecodeProblem, selected, options: DecodeOptions) -> Decode
                     max_sweeps=options.max_sweeps, progress=options.progress)
     return DecodedPart("bp", selected, _samples_of(problem.comps, selected), res.probability,
                        unconverged=res.unconverged, converged=bool(res.converged),
-                       diagnostics=res.diagnostics())
+                       diagnostics=res.diagnostics(), bp=res)
 
 
 # the built-in part decoders (problem, selected component ids, options) -> DecodedPart, by the
@@ -432,14 +434,14 @@ def _judge(run, assay, post: Posterior, rule, lik, comps, seed, expectations: bo
 
 
 def _not_converged(part: DecodedPart, comps: Components, remedy: str | None) -> str:
-    d = part.diagnostics
+    bp = part.bp
     n_bad = len(part.unconverged)
     n_samples = int(comps.sizes[part.unconverged].sum())
-    res = d.get("residual")
+    res = finite_or_none(bp.residual)
     head = (f"WARNING: belief propagation did not converge on {n_bad} of {len(part.components)} "
-            f"group(s) of linked samples ({n_samples} samples) within {d.get('sweeps')} sweeps "
+            f"group(s) of linked samples ({n_samples} samples) within {bp.sweeps} sweeps "
             f"(largest message change {res if res is None else format(res, '.3g')}, tolerance "
-            f"{d.get('tolerance'):g})")
+            f"{bp.tolerance:g})")
     if remedy:
         return f"{head}; {remedy}"
     hint = "raise --max-sweeps or --damping (e.g. 0.5), or use --method gibbs"
@@ -498,8 +500,7 @@ def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, l
     bp = next((p for p in parts if p.method == "bp"), None)
     if bp is not None:
         diagnostics["bp"] = bp.diagnostics
-        diagnostics.update(sweeps=int(bp.diagnostics["sweeps"]),
-                           residual=bp.diagnostics["residual"])
+        diagnostics.update(sweeps=int(bp.bp.sweeps), residual=finite_or_none(bp.bp.residual))
     else:
         diagnostics.update(sweeps=0, residual=0.0)
     for p in parts:

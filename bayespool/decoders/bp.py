@@ -392,7 +392,7 @@ class BPResult:
 
     def diagnostics(self) -> dict:
         return {"converged": bool(self.converged), "sweeps": int(self.sweeps),
-                "residual": _finite_or_none(self.residual), "tolerance": self.tolerance,
+                "residual": finite_or_none(self.residual), "tolerance": self.tolerance,
                 "damping": self.damping, "max_sweeps": self.max_sweeps,
                 "schedule": self.schedule, "seconds": round(self.seconds, 4),
                 "cpu_seconds": round(self.cpu_seconds, 4),
@@ -401,7 +401,8 @@ class BPResult:
                 "pools_general": self.general_pools, "pools_constant": self.flat_pools}
 
 
-def _finite_or_none(x):
+def finite_or_none(x):
+    """A float, or None where it is not finite (JSON has no inf or NaN)."""
     x = float(x)
     return x if np.isfinite(x) else None
 
