@@ -17,7 +17,7 @@ import warnings
 
 from .errors import ImpossibleEvidenceError, InputError
 
-from .result_protocol import CAUTION, file_frame, json_ready
+from .result_protocol import CAUTION, file_frame, json_ready, spelled_as
 
 
 # Library errors name the Python parameter; the command line shows the flag that sets it. Flags
@@ -27,8 +27,6 @@ FLAGS = {
     'gibbs_options["chains"]': "--chains",
     'gibbs_options["max_sweeps"]': "--gibbs-sweeps",
     'gibbs_options["prevalence_prior"]': "--prevalence-prior",
-    'fixed["specificity"]': "--fix specificity=VALUE",
-    'fixed["se_max"]': "--fix se_max=VALUE",
     "result_words": "--result-word",
     "plate_size": "--destination-plate-size",
     "prefix": "--destination-prefix",
@@ -37,7 +35,9 @@ FLAGS = {
 
 
 def flag(parameter: str) -> str:
-    """The command-line flag that sets a library parameter."""
+    """The command-line flag that sets a library parameter (``fixed["NAME"]``: ``--fix``)."""
+    if parameter.startswith('fixed["') and parameter.endswith('"]'):
+        return f"--fix {parameter[7:-2]}=VALUE"
     return FLAGS.get(parameter) or "--" + parameter.replace("_", "-")
 
 
@@ -1045,7 +1045,7 @@ def main(argv=None) -> int:
     _, run = COMMANDS[args.command]
     args.pending_notes = []
     try:
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), spelled_as(flag):
             warnings.simplefilter("ignore", UserWarning)
             code = run(args)
         for note in args.pending_notes:

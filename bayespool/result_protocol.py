@@ -17,6 +17,8 @@ from __future__ import annotations
 
 import math
 from abc import ABC, abstractmethod
+from contextlib import contextmanager
+from contextvars import ContextVar
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # pandas is imported by the results themselves: `bayespool --help` stays light
@@ -51,6 +53,27 @@ class Result(ABC):
 
     def __repr__(self) -> str:
         return f"{type(self).__name__}({self._brief()})"
+
+
+_SPELLING: ContextVar = ContextVar("bayespool_spelling", default=None)
+
+
+def spell(parameter: str) -> str:
+    """A parameter as text written for people (warnings, advice, printed results) names it: the
+    Python name, or a front end's own spelling while it runs the library (:func:`spelled_as`;
+    the command line shows its flags)."""
+    names = _SPELLING.get()
+    return parameter if names is None else names(parameter)
+
+
+@contextmanager
+def spelled_as(names):
+    """Within the block, :func:`spell` spells parameters as ``names(parameter)`` says."""
+    token = _SPELLING.set(names)
+    try:
+        yield
+    finally:
+        _SPELLING.reset(token)
 
 
 def membership_index(n: int) -> pd.RangeIndex:

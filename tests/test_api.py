@@ -301,3 +301,26 @@ def test_readme_from_python_runs_as_written_and_matches_the_command_line(tmp_pat
     assert list(written["probability"]) == ["%.10g" % p for p in frame["probability"]]
     assert list(written["call"]) == list(frame["call"])
     assert space["one"]["probability"] == frame["probability"].iloc[0]
+
+
+def test_advice_names_parameters_in_python_and_flags_on_the_command_line(demo, cli, tmp_path):
+    # past runs cannot separate sensitivity from prevalence and specificity (Hui & Walter 1980):
+    # the advice says what to fix, as Python spells it, and as the command line spells it
+    run, _ = demo
+    fit = bayespool.calibrate(run=run, model="constant")
+    text = " ".join(fit.warnings)
+    assert 'fixed["specificity"]' in text and "(validation)" in text
+    assert "--" not in text and "--" not in str(fit)
+    with pytest.raises(InputError) as info:
+        fit.check_identified()
+    assert "--" not in str(info.value) and "allow_unidentified" in str(info.value)
+    res = cli("calibrate", "--layout", DEMO / "layout.csv", "--readouts", DEMO / "readouts.csv",
+              "--model", "constant", "--no-plot", "--out", tmp_path / "a.toml")
+    assert res.code == 2 and "--fix specificity=VALUE" in res.err and "--validation" in res.err
+    assert "--allow-unidentified" in res.err
+    # the Dorfman optimum's text names the limit the same two ways
+    opt = bayespool.optimal_dorfman(0.001, max_pool_size=8)
+    assert "max_pool_size limit" in str(opt)
+    res = cli("design", "--scheme", "dorfman", "--optimize", "--prevalence", "0.001",
+              "--max-pool-size", "8")
+    assert res.code == 0 and "--max-pool-size limit" in res.out

@@ -174,7 +174,8 @@ def test_why_view_lists_each_specimens_pools_readouts_and_other_members(demo, re
 
 
 def page_csv(demo, name):
-    return next(demo.folder.parent.parent.rglob(name))
+    # this session's temporary folder only: the folder above it holds other sessions' files
+    return next(demo.folder.parent.rglob(name))
 
 
 def test_calls_table_and_plate_map_link_to_the_why_view(demo, reports):

@@ -15,6 +15,7 @@ from scipy.special import xlogy
 
 from ..assay import Assay
 from ..errors import InputError
+from ..result_protocol import spell
 from ..validation import (check_choice, check_count, check_number, check_seed,
                           parameter_error)
 from . import boundary
@@ -29,6 +30,11 @@ from .space import Space
 from .validation import Cells, ValidationData
 
 INTERVALS = ("profile", "wald")
+
+
+def _fix(name: str) -> str:
+    """How to keep parameter ``name`` at a value (``fixed["name"]``; --fix on the command line)."""
+    return spell(f'fixed["{name}"]')
 
 
 def check_options(model, level, intervals) -> float:
@@ -188,8 +194,8 @@ def edge_warnings(params, at_lower, at_upper, family_name: str, latent: bool = F
         if p.name == "specificity":
             if hi:
                 out.append("the specificity is estimated at 1, so decode treats every positive "
-                           "readout as proof of a positive member (fix a value with --fix "
-                           "specificity=... if that is too strong)")
+                           "readout as proof of a positive member (fix a value with "
+                           f"{_fix('specificity')} if that is too strong)")
             else:
                 out.append("the specificity is estimated at 0")
         elif p.name == "prevalence":
@@ -201,7 +207,7 @@ def edge_warnings(params, at_lower, at_upper, family_name: str, latent: bool = F
             if family_name in ("constant", "table"):
                 text += ("; decode then treats a " + ("positive" if lo else "negative")
                          + " readout of such a pool as ruling those positives out (fix a value "
-                         f"with --fix '{p.name}=...' if that is too strong)")
+                         f"with {_fix(p.name)} if that is too strong)")
             out.append(text)
         elif p.name == "r50":
             out.append("r50 ran to the edge of its range: "
@@ -334,8 +340,8 @@ def calibrate_validation(data: ValidationData, model: str = "best", fixed: dict 
                         f"maximum-likelihood specificity is {sp:g}, which the data do not show "
                         f"with certainty, so the assay file gets {sp_written:.6g}, the "
                         f"{boundary.RULE_SPECIFICITY} (the {100 * level:g}% interval is "
-                        f"{sp_lo:.4g} to {sp_hi:.4g}; fix a value with --fix specificity=... to "
-                        "choose another)")
+                        f"{sp_lo:.4g} to {sp_hi:.4g}; fix a value with "
+                        f"{_fix('specificity')} to choose another)")
     if fit.family.name == "table":
         warnings += _table_gaps(fit)
 

@@ -19,6 +19,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..result_protocol import spell
 from .families import Family
 from .space import Space
 
@@ -38,7 +39,8 @@ class Identifiability:
         return ("the past runs do not identify the assay (Hui & Walter 1980): "
                 + "; ".join(self.reasons) + "; the estimates along that direction are arbitrary, "
                 "so no assay file was written. To fix: " + self.advice
-                + " (--allow-unidentified writes the fit anyway, marked as not identified)")
+                + f" ({spell('allow_unidentified')} writes the fit anyway, marked as not "
+                "identified)")
 
 
 def advice(run, read: np.ndarray, fam: Family, space: Space) -> str:
@@ -52,8 +54,8 @@ def advice(run, read: np.ndarray, fam: Family, space: Space) -> str:
     known = [n for n in ("specificity", "se_max") if n in free]
     if known:
         steps.append("fix a value known from elsewhere (" + " or ".join(
-            f"--fix {n}=VALUE" for n in known) + ")")
-    steps.append("calibrate from a validation run with known positives (--validation)")
+            spell(f'fixed["{n}"]') for n in known) + ")")
+    steps.append(f"calibrate from a validation run with known positives ({spell('validation')})")
     if not has_singles:
         steps.append("add the individual follow-up tests of positive pools to the layout and "
                      "readouts")
@@ -63,7 +65,7 @@ def advice(run, read: np.ndarray, fam: Family, space: Space) -> str:
             steps.append(f"add runs with another pool size (these hold only "
                          f"{', '.join(str(int(k)) for k in pooled) or 'none'}"
                          f"{' and individual tests' if has_singles else ''})")
-        steps.append("or a simpler sensitivity model (--model constant)")
+        steps.append(f"or a simpler sensitivity model ({spell('model')} constant)")
     elif len(pooled) < 2 and not has_singles:
         steps.append("or add runs with another pool size")
     return "; ".join(steps)

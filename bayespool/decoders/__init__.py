@@ -444,7 +444,9 @@ def _not_converged(part: DecodedPart, comps: Components, remedy: str | None) -> 
             f"{bp.tolerance:g})")
     if remedy:
         return f"{head}; {remedy}"
-    hint = "raise --max-sweeps or --damping (e.g. 0.5), or use --method gibbs"
+    from ..result_protocol import spell
+    hint = (f"raise {spell('max_sweeps')} or {spell('damping')} (e.g. 0.5), or use "
+            f"{spell('method')} gibbs")
     return f"{head}; their probabilities are unreliable: {hint}"
 
 

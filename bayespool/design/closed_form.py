@@ -26,7 +26,7 @@ import pandas as pd
 from scipy.stats import binom
 
 from ..assay import Assay, ConstantSensitivity
-from ..result_protocol import Result
+from ..result_protocol import Result, spell
 from ..validation import check_count, check_open_probability
 from .base import check_max_pool_size
 
@@ -155,9 +155,9 @@ class DorfmanOptimum(Result):
                          f"(pool sizes 2 to {self.max_pool_size} all cost more)")
         limit = ""
         if self.at_limit:
-            limit = (" (the --max-pool-size limit: larger pools would cost fewer tests)"
-                     if self.capped else
-                     " (the largest size searched: a larger --max-pool-size may do better)")
+            k = spell("max_pool_size")
+            limit = (f" (the {k} limit: larger pools would cost fewer tests)" if self.capped
+                     else f" (the largest size searched: a larger {k} may do better)")
         if self.target_sensitivity is not None:
             lines.append(f"  among pool sizes with a sensitivity of at least "
                          f"{self.target_sensitivity:g}"
