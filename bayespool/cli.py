@@ -308,7 +308,7 @@ def _run_assay(args):
 
 # ---- decode
 def _add_decode(sub, shared):
-    from .defaults import BP_DAMPING, BP_MAX_SWEEPS, BP_TOLERANCE, METHODS
+    from .defaults import BP_DAMPING, BP_MAX_SWEEPS, BP_TOLERANCE, LOOPY_SAMPLER_LIMIT, METHODS
     p = sub.add_parser("decode", parents=[shared["run"]],
                        help="per-sample probabilities and calls from pooled readouts",
                        description="Posterior probability that each sample is positive, and a "
@@ -325,6 +325,10 @@ def _add_decode(sub, shared):
     bp.add_argument("--tolerance", type=_probability, default=BP_TOLERANCE, metavar="TOL",
                     help="converged when no message (log-odds) changes by TOL or more in a sweep "
                     "(default: %(default)s)")
+    bp.add_argument("--loopy-sampler-limit", type=int, default=LOOPY_SAMPLER_LIMIT, metavar="N",
+                    help="auto: re-decode loopy groups too large to enumerate by the Gibbs "
+                    "sampler, smallest first, up to N specimens; beyond, BP's answer is kept and "
+                    "marked bp-loopy (default: %(default)s; 0 keeps BP's answer everywhere)")
     p.add_argument("--out", required=True, metavar="CSV", help="posterior: sample,probability,call,...")
     p.add_argument("--strict", action="store_true",
                    help="exit with status 3 when the result is unreliable: belief propagation "
@@ -360,7 +364,7 @@ def _run_decode(args):
     post = decode(run, assay, method=args.method, seed=args.seed, damping=args.damping,
                   tolerance=args.tolerance, max_sweeps=args.max_sweeps,
                   gibbs_options=_gibbs_options(args), model_check=not args.no_model_check,
-                  **_targets(args))
+                  loopy_sampler_limit=args.loopy_sampler_limit, **_targets(args))
     check = args.control_check
     if check is not None:
         from .controls import mark_specimens
@@ -898,9 +902,14 @@ def _add_prevalence(sub, shared):
                    "likelihood (default: a perfect test, as the classic estimators assume)")
     p.add_argument("--by", type=_names, default=[], metavar="COLS",
                    help="grouping columns, comma-separated (e.g. site,week)")
-    p.add_argument("--interval", choices=INTERVALS, default="skew-score",
-                   help="interval method (default: %(default)s, the skewness-corrected score "
-                   "interval; exact needs equal pool sizes)")
+    p.add_argument("--interval", choices=INTERVALS, default=None,
+                   help="interval method (default: skew-score, the skewness-corrected score "
+                   "interval, or likelihood with --assay-uncertainty; exact needs equal pool "
+                   "sizes)")
+    p.add_argument("--assay-uncertainty", action="store_true",
+                   help="integrate the likelihood over the fitted assay's uncertainty (the "
+                   "[fit.uncertainty] table calibrate writes): one assay shared by every pool, so "
+                   "its error widens the interval (intervals likelihood and bayes)")
     p.add_argument("--level", type=_probability, default=0.95, metavar="L",
                    help="confidence level (default: %(default)s)")
     p.add_argument("--per", type=_probability, default=1.0, metavar="N",
@@ -930,7 +939,7 @@ def _run_prevalence(args):
         data = pools_from_run(Run.read(args.layout, args.readouts, args.samples))
     result = estimate_prevalence(data, assay, by=args.by, interval=args.interval,
                                  level=args.level, per=args.per, prior=args.prior,
-                                 compare=args.compare)
+                                 compare=args.compare, assay_uncertainty=args.assay_uncertainty)
     if args.out:
         _write_table(result, args.out)
     if args.report:

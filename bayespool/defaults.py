@@ -9,6 +9,7 @@ METHODS = ("auto", "exact", "bp", "gibbs")
 BP_MAX_SWEEPS = 200     # iteration cap
 BP_DAMPING = 0.0        # fraction of the old message kept (log-odds); 0 = plain sum-product
 BP_TOLERANCE = 1e-8     # converged when no message (log-odds) moves by this much in a sweep
+LOOPY_SAMPLER_LIMIT = 500  # auto: specimens of loopy BP groups re-decoded by the sampler
 
 # prevalence intervals (bayespool.surveillance.intervals) and regression links
 PREVALENCE_INTERVALS = ("skew-score", "score", "likelihood", "exact", "bayes")

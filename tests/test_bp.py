@@ -255,7 +255,11 @@ def test_auto_decodes_small_groups_exactly_and_large_ones_by_bp():
                                          zip(small.n_positive, small.n_negative)])])
     n = big.n_samples + small.n_samples
     run = Run.from_arrays(pool_of, sample_of, n, big.n_pools + small.n_pools, 0.1, rp, rr)
-    post = decode(run, assay, method="auto")
+    # by default the big loopy group is re-decoded by the sampler (tests/test_auto_loopy.py);
+    # without it (loopy_sampler_limit=0) BP's answer is kept and marked
+    sampled = decode(run, assay, method="auto", seed=1)
+    assert set(sampled.sample_method[:64]) == {"gibbs"} and sampled.method == "exact+gibbs"
+    post = decode(run, assay, method="auto", loopy_sampler_limit=0)
     assert post.method == "exact+bp"
     method = post.sample_method
     # the big group is loopy: BP stays approximate there and the method column says so

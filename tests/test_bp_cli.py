@@ -45,7 +45,14 @@ def test_decode_bp_json_reports_convergence(cli, tmp_path):
 
 def test_decode_auto_on_a_large_group_uses_bp_and_says_what_it_chose(cli, tmp_path):
     files = write_inputs(tmp_path)  # one group of 40 linked specimens: above the exact limit
-    res = cli(*args_for(files, tmp_path / "p.csv", "--json"))
+    # by default auto then re-decodes the loopy group by the sampler, starting from BP's answer
+    res = cli(*args_for(files, tmp_path / "s.csv", "--json"))
+    assert res.code == 0, res.err
+    summary = json.loads(res.out)
+    assert summary["method"] == "gibbs" and summary["loopy_check"]["samples"] == 40
+    assert "re-decoded 1 loopy group(s) (40 samples)" in summary["choice"]
+    # without the sampler BP's answer is kept (and marked bp-loopy)
+    res = cli(*args_for(files, tmp_path / "p.csv", "--json", "--loopy-sampler-limit", "0"))
     assert res.code == 0, res.err
     summary = json.loads(res.out)
     assert summary["method"] == "bp"

@@ -23,7 +23,7 @@ def sampler_module(monkeypatch):
     calls = []
 
     def fallback(run, lik_ptr, loglik, comps, selected, why, seed=None, negative_below=0.01,
-                 positive_above=0.99, options=None):
+                 positive_above=0.99, options=None, start=None):
         calls.append((np.array(selected), why, seed, negative_below, positive_above))
         prob, _, count_ptr, counts = decode_exact(run, lik_ptr, loglik, comps, selected)
         specimens = np.concatenate([comps.samples_of(int(c)) for c in selected])
@@ -66,8 +66,13 @@ def test_no_fallback_for_an_explicit_bp_or_a_converged_run(sampler_module):
     assert not sampler_module and set(post.sample_method) == {"bp"}
     assert any(w.startswith("WARNING: belief propagation did not converge")
                for w in post.warnings)
-    post = decode(run, assay, method="auto", exact_limit=4)
+    post = decode(run, assay, method="auto", exact_limit=4, loopy_sampler_limit=0)
     assert not sampler_module and post.diagnostics["converged"]
+    # by default a converged loopy group is still re-decoded by the sampler, from BP's answer
+    post = decode(run, assay, method="auto", exact_limit=4)
+    (selected, why, *_), = sampler_module
+    assert "where belief propagation is approximate" in why and "converge" not in why
+    assert set(post.sample_method) == {"gibbs"} and "loopy_check" in post.diagnostics
 
 
 def test_without_the_sampler_there_is_no_fallback_and_a_loud_warning(monkeypatch):

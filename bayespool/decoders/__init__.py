@@ -27,6 +27,7 @@ from .bp import (DAMPING, MAX_SWEEPS, TOLERANCE, BPResult, check_bp_options, dec
 from .counts import count_distribution
 from .exact import EXACT_LIMIT, check_component_sizes, decode_exact, impossible
 from .graph import Components, components
+from .loopy import SAMPLER_LIMIT, check_text, loopy_check, loopy_for_sampler
 from ..validation import check_choice, check_count, check_seed, check_thresholds
 from .posterior import DEFAULT_NEGATIVE_BELOW, DEFAULT_POSITIVE_ABOVE, Posterior
 
@@ -169,14 +170,15 @@ def fallback_decoder(method: str, part: DecodedPart) -> Callable | None:
     return _gibbs_part
 
 
-def _gibbs_part(problem: DecodeProblem, selected, options: DecodeOptions) -> DecodedPart:
-    """The Gibbs sampler on the given components, via ``gibbs.fallback(run, lik_ptr, loglik, comps,
-    selected, why, seed, negative_below, positive_above, options)``."""
+def _gibbs_part(problem: DecodeProblem, selected, options: DecodeOptions,
+                why: str = "belief propagation did not converge", start=None) -> DecodedPart:
+    """The Gibbs sampler on the given components, via :func:`bayespool.decoders.gibbs.fallback`;
+    ``why`` goes into its note, ``start`` (probabilities, e.g. BP's) draws one chain's start."""
     from .gibbs import fallback
     run = problem.run
-    fb = fallback(run, problem.lik_ptr, problem.loglik, problem.comps, selected,
-                  "belief propagation did not converge", options.seed, options.negative_below,
-                  options.positive_above, options.gibbs_options)
+    fb = fallback(run, problem.lik_ptr, problem.loglik, problem.comps, selected, why,
+                  options.seed, options.negative_below, options.positive_above,
+                  options.gibbs_options, start)
     prob = np.array(run.prior, dtype=float)
     prob[fb.specimens] = fb.probability
     mcse = np.zeros(run.n_samples)
@@ -280,13 +282,17 @@ def decode(run: Run, assay, *, method: str = "auto",
            progress: bool | None = None, gibbs_options: dict | None = None,
            target_sensitivity: float | None = None, max_false_discovery: float | None = None,
            expectations: bool = True, model_check: bool = True,
-           exact_memo: dict | None = None) -> Posterior:
+           exact_memo: dict | None = None,
+           loopy_sampler_limit: int = SAMPLER_LIMIT) -> Posterior:
     """Posterior P(x_i = 1 | readouts) for every specimen of ``run`` under ``assay``.
 
     ``method`` is one of :data:`METHODS`. ``damping``, ``tolerance`` and ``max_sweeps`` steer belief
     propagation (see :mod:`bayespool.decoders.bp`); ``progress`` shows sweeps on stderr (default: when
     it is a terminal and the run is large). ``gibbs_options`` go to the Gibbs sampler (chains,
     max_sweeps, prevalence_prior, ...; see :meth:`bayespool.decoders.gibbs.GibbsSampler.sample`).
+    ``loopy_sampler_limit``: with ``auto``, loopy groups too large to enumerate are re-decoded
+    by the Gibbs sampler, smallest first, up to this many specimens (0: keep BP's answer, marked
+    ``bp-loopy``; see :mod:`bayespool.decoders.loopy`).
     ``exact_memo``: an :class:`~bayespool.decoders.exact.ExactMemo` the caller keeps across
     decodes of a growing run (the closed loop); components whose enumeration would read exactly
     the same numbers are taken from it (bit-identical results).
@@ -352,15 +358,18 @@ def decode(run: Run, assay, *, method: str = "auto",
     from ..ct_evidence import ct_notes
     rule = DecisionRule(negative_below, positive_above, target_sensitivity, max_false_discovery)
     post = _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max_sweeps,
-                   progress, gibbs_options, expectations, model_check, exact_memo)
+                   progress, gibbs_options, expectations, model_check, exact_memo,
+                   loopy_sampler_limit)
     post.warnings.extend(ct_notes(run, assay))
     post.n_pools, post.n_readouts = run.n_pools, run.n_readouts
     return post
 
 
 def _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max_sweeps,
-            progress, gibbs_options, expectations, model_check, exact_memo=None) -> Posterior:
+            progress, gibbs_options, expectations, model_check, exact_memo=None,
+            loopy_sampler_limit=SAMPLER_LIMIT) -> Posterior:
     method = check_choice(method, "method", METHODS)
+    loopy_sampler_limit = check_count(loopy_sampler_limit, "loopy_sampler_limit", 0)
     lo, hi = check_thresholds(DEFAULT_NEGATIVE_BELOW if rule.low is None else rule.low,
                               DEFAULT_POSITIVE_ABOVE if rule.high is None else rule.high)
     damping, tolerance, max_sweeps = check_bp_options(damping, tolerance, max_sweeps)
@@ -400,15 +409,36 @@ def _decode(run, assay, method, rule, seed, exact_limit, damping, tolerance, max
     for name in [m for m in decoders if (choice.method == m).any()]:
         part = decoders[name](problem, choice.components(name), options)
         parts.append(part)
+        loopy = np.zeros(0, dtype=np.int64)
+        if method == "auto" and name == "bp" and assay.ct is None and choice.tree is not None:
+            loopy = loopy_for_sampler(comps, part.components, choice.tree, part.unconverged,
+                                      loopy_sampler_limit)
+        if not len(part.unconverged) and not len(loopy):
+            continue
+        fallback = fallback_decoder(method, part) if len(part.unconverged) else _gibbs_part
+        if fallback is None:
+            part.warnings.append(_not_converged(part, comps, None))
+            continue
+        why = ["belief propagation did not converge"] if len(part.unconverged) else []
+        if len(loopy):
+            why.append(f"{len(loopy)} loopy group(s) where belief propagation is approximate, "
+                       "sampled from its answer")
+        redo_set = np.union1d(part.unconverged, loopy).astype(np.int64)
+        redo = fallback(problem, redo_set, options, why=" and ".join(why),
+                        start=part.probability)
+        choice.method[redo_set] = redo.method
         if len(part.unconverged):
-            fallback = fallback_decoder(method, part)
-            if fallback is None:
-                part.warnings.append(_not_converged(part, comps, None))
-                continue
-            redo = fallback(problem, part.unconverged, options)
-            choice.method[part.unconverged] = redo.method
             part.warnings.append(_not_converged(part, comps, f"re-decoded by {redo.method}"))
-            parts.append(redo)
+        if len(loopy):
+            redo.diagnostics["loopy_check"] = loopy_check(part.probability, redo,
+                                                          _samples_of(comps, loopy), len(loopy))
+        parts.append(redo)
+    resampled = [p for p in parts if "loopy_check" in p.diagnostics]
+    if resampled:
+        c = resampled[0].diagnostics["loopy_check"]
+        choice = DecoderChoice(choice.method, f"{choice.text}; then the Gibbs sampler re-decoded "
+                               f"{c['groups']} loopy group(s) ({c['samples']} samples) from BP's "
+                               "answer", choice.tree)
     post = _assemble(run, comps, choice, parts, lo, hi)
     if assay.ct is not None:
         from .ct_decode import finish_ct
@@ -513,10 +543,15 @@ def _assemble(run: Run, comps: Components, choice: DecoderChoice, parts: list, l
     if groups is not None:  # joint answers of the sampler's part, where the report looks
         diagnostics["ambiguity_groups"] = groups
     warnings = list(run.notes) + [w for p in parts for w in p.warnings]
+    check = diagnostics.get("gibbs", {}).pop("loopy_check", None)
+    if check is not None:
+        diagnostics["loopy_check"] = check
     if diagnostics["bp_loopy_samples"]:
         warnings.append(f"{diagnostics['bp_loopy_samples']} sample(s) in loopy groups too large "
-                        "to enumerate were decoded by belief propagation, which is approximate "
-                        "there even when it converges (method bp-loopy)")
+                        "to enumerate or to sample were decoded by belief propagation, which is "
+                        "approximate there even when it converges (method bp-loopy)"
+                        + (f"; {check_text(check)}" if check is not None else
+                           "; no loopy group was small enough to check it against the sampler"))
     return Posterior(run.sample_ids, prob, run.prior, "+".join(names) or "exact", sample_method,
                      lo, hi, log_evidence=log_evidence, mcse=mcse, count_distribution=dist,
                      draws=draws, diagnostics=diagnostics, columns=sample_columns(run),

@@ -115,6 +115,17 @@ class _SizeClass:
             return (d == n).astype(float)
         return np.exp(self.log_choose[j] + d * np.log(p) + (n - d) * np.log1p(-p))
 
+    def pmf_matrix(self, p: np.ndarray) -> np.ndarray:
+        """Binomial(d; k, p) for every p (rows), d = 0..k, exact at p = 0 and p = 1."""
+        k = self.k
+        d = np.arange(k + 1)
+        inner = (p > 0.0) & (p < 1.0)
+        q = np.where(inner, p, 0.5)[:, None]
+        out = np.exp(self.log_choose[0] + d * np.log(q) + (k - d) * np.log1p(-q))
+        out[p <= 0.0] = (d == 0)
+        out[p >= 1.0] = (d == k)
+        return out
+
     def derivatives(self, p: float) -> np.ndarray:
         """P_m and its first three derivatives in p, shape (4, r + 1)."""
         out = np.zeros((4, self.r + 1))
@@ -153,10 +164,15 @@ class PooledLikelihood:
     # ---- the assay
     def theta(self, k: int) -> np.ndarray:
         """P(positive readout | pool of k with d positives), d = 0..k."""
+        return self.theta_of(self.assay, k)
+
+    @staticmethod
+    def theta_of(assay, k: int) -> np.ndarray:
+        """:meth:`theta` of ``assay`` (None: a perfect test)."""
         d = np.arange(k + 1)
-        if self.assay is None:
+        if assay is None:
             return (d > 0).astype(float)
-        return self.assay.positive_probability(np.full(k + 1, k), d).astype(float)
+        return assay.positive_probability(np.full(k + 1, k), d).astype(float)
 
     def positive_probability(self, k: int, p) -> np.ndarray:
         """P(one readout of a pool of k is positive) at prevalence(s) p."""
@@ -188,10 +204,9 @@ class PooledLikelihood:
             idx = self._cells_of[key]
             m = self.cells.positives[idx]
             cnt = self.cells.count[idx].astype(float)
-            for a, q in enumerate(p):
-                prob = cls.c[m] @ cls.pmf(0, q)
-                with np.errstate(divide="ignore"):
-                    out[a] += float(cnt @ np.log(prob))
+            prob = cls.c[m] @ cls.pmf_matrix(p).T          # (cells, prevalences)
+            with np.errstate(divide="ignore"):
+                out += cnt @ np.log(prob)
         return out
 
     def moments(self, p: float) -> Moments:

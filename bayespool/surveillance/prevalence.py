@@ -17,8 +17,10 @@ from ..errors import InputError
 from ..result_protocol import Result
 from .checks import check_beta_prior, check_level, check_positive
 from .difference import Difference, difference
-from .estimators import (bias_corrected, clipped_note, maximum_likelihood,
+from .estimators import (Estimate, bias_corrected, clipped_note, maximum_likelihood,
                          minimum_infection_rate)
+from .integrated import METHODS as INTEGRATED_METHODS
+from .integrated import IntegratedLikelihood, assay_draws
 from .intervals import METHODS, interval
 from .likelihood import PoolCells, PooledLikelihood
 from .pools import PooledData, pools_from_frame
@@ -108,7 +110,7 @@ class PrevalenceEstimates(Result):
         head = ["group", "pools", "positive", "specimens", "MLE", "bias-corrected", "lower",
                 "upper", "MIR"]
         body = [[g.label, str(g.pools), str(g.positive_pools), str(g.specimens)]
-                + [f"{getattr(g, k) * self.per:.4g}" for k in self.SCALED] for g in self.groups]
+                + [_cell(getattr(g, k) * self.per) for k in self.SCALED] for g in self.groups]
         widths = [max(len(h), *(len(r[i]) for r in body)) if body else len(h)
                   for i, h in enumerate(head)]
         lines.append("  ".join(h.rjust(w) if i else h.ljust(w)
@@ -127,6 +129,10 @@ class PrevalenceEstimates(Result):
     def _brief(self) -> str:
         return (f"{len(self.groups)} group(s), interval={self.interval!r}, "
                 f"level={self.level:g}, per={self.per:g}")
+
+
+def _cell(v: float) -> str:
+    return "n/a" if math.isnan(v) else f"{v:.4g}"
 
 
 def _json_number(v: float):
@@ -152,9 +158,9 @@ def _group_frames(data: PooledData, by: list):
         yield dict(zip(by, key)), f[sel]
 
 
-def estimate_prevalence(pools, assay=None, *, by=(), interval: str = "skew-score",
+def estimate_prevalence(pools, assay=None, *, by=(), interval: str | None = None,
                         level: float = 0.95, per: float = 1.0, prior=(1.0, 1.0),
-                        compare=None) -> PrevalenceEstimates:
+                        compare=None, assay_uncertainty: bool = False) -> PrevalenceEstimates:
     """Prevalence by group from pooled readouts of pools of any sizes.
 
     Parameters
@@ -167,8 +173,9 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str = "skew-score
         (Tu, Litvak & Pagano 1995). None means a perfect test (Se = Sp = 1).
     by : str or sequence of str
         Grouping columns; none gives one group of all pools.
-    interval : {'skew-score', 'score', 'likelihood', 'exact', 'bayes'}
-        Interval method (see :mod:`bayespool.surveillance.intervals`).
+    interval : {'skew-score', 'score', 'likelihood', 'exact', 'bayes'}, optional
+        Interval method (see :mod:`bayespool.surveillance.intervals`); default 'skew-score', or
+        'likelihood' with ``assay_uncertainty``.
     level : float
         Confidence level, strictly between 0 and 1.
     per : float
@@ -178,6 +185,12 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str = "skew-score
     compare : (str, str), optional
         Two group labels (values joined by ' / ' when grouping by several columns) whose
         difference is estimated; by default when ``by`` is one column with exactly two values.
+    assay_uncertainty : bool
+        Integrate the likelihood over the fitted assay's uncertainty (the ``[fit.uncertainty]``
+        table ``calibrate`` writes; :mod:`bayespool.surveillance.integrated`): every pool shares
+        one assay, so its error widens the interval instead of averaging out. Intervals
+        'likelihood' and 'bayes' only; no bias-corrected estimate; the difference of two groups
+        then takes the assay as fitted (said in a note).
 
     Returns
     -------
@@ -204,8 +217,11 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str = "skew-score
     """
     data = pools if isinstance(pools, PooledData) else pools_from_frame(pools)
     by = data.check_by(by)
+    if interval is None:
+        interval = "likelihood" if assay_uncertainty else "skew-score"
     if interval not in METHODS:
         raise InputError(f"`interval` must be one of {', '.join(METHODS)}, got {interval!r}")
+    spread = _spread(assay, interval, data.source) if assay_uncertainty else None
     level, per, prior = check_level(level), check_positive(per, "per"), check_beta_prior(prior)
     if not len(data.frame):
         raise InputError("no pool has a readout", data.source)
@@ -213,9 +229,15 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str = "skew-score
     for key, frame in _group_frames(data, by):
         cells = PoolCells.from_pools(frame["size"], frame["n_positive"], frame["n_negative"])
         lik = PooledLikelihood(cells, assay, data.source)
-        mle = maximum_likelihood(lik)
-        bc = bias_corrected(lik, mle)
-        lo, up = _interval(lik, interval, level, mle.value, prior, key)
+        if spread is None:
+            mle = maximum_likelihood(lik)
+            bc = bias_corrected(lik, mle)
+            lo, up = _interval(lik, interval, level, mle.value, prior, key)
+        else:
+            mixed = IntegratedLikelihood(cells, spread, data.source)
+            mle = maximum_likelihood(mixed)
+            bc = Estimate(float("nan"))
+            lo, up = _interval(mixed, interval, level, mle.value, prior, key)
         note = clipped_note(lik, mle)
         g = GroupEstimate(key, cells.pools, cells.positive_pools(), cells.specimens, mle.value,
                           bc.value, lo, up, minimum_infection_rate(lik),
@@ -226,8 +248,27 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str = "skew-score
     if assay is None:
         notes.append("no assay given: the test is taken as " + PERFECT)
     diff = _difference(liks, by, compare, level, per)
-    return PrevalenceEstimates(groups, by, interval, level, per,
-                               PERFECT if assay is None else assay.describe(), diff, notes, prior)
+    described = PERFECT if assay is None else assay.describe()
+    if spread is not None:
+        described += (f", integrated over the fit's uncertainty ({len(assay_draws(spread))} assays "
+                      "drawn from it; one shared by every pool)")
+        notes.append("estimates and intervals integrate the likelihood over the fitted assay's "
+                     "uncertainty; no bias-corrected estimate is defined there"
+                     + ("; the difference takes the assay as fitted" if diff is not None else ""))
+    return PrevalenceEstimates(groups, by, interval, level, per, described, diff, notes, prior)
+
+
+def _spread(assay, interval: str, source):
+    """The assay's fitted uncertainty, checked for what ``assay_uncertainty`` needs."""
+    if assay is None:
+        raise InputError("`assay_uncertainty` needs an `assay` written by calibrate (with its "
+                         "[fit.uncertainty] table)")
+    if interval not in INTEGRATED_METHODS:
+        raise InputError(f"`interval` {interval!r} needs the score of one assay; over the "
+                         "assay's uncertainty use "
+                         f"{' or '.join(map(repr, INTEGRATED_METHODS))}")
+    from ..assay_spread import integrate
+    return integrate(assay)
 
 
 def _interval(lik, method, level, estimate, prior, key):

@@ -45,14 +45,15 @@ def check_options(options: dict | None) -> dict:
 
 
 def run_sampler(run, lik_ptr, loglik, specimens=None, seed=None, negative_below=0.01,
-                positive_above=0.99, options=None) -> GibbsResult:
-    """Sample ``specimens`` (all by default) with the given options; see :class:`GibbsSampler`."""
+                positive_above=0.99, options=None, start=None) -> GibbsResult:
+    """Sample ``specimens`` (all by default) with the given options; see :class:`GibbsSampler`
+    (``start``: probabilities to draw the first chain's start from)."""
     opts = check_options(options)
     sampler = GibbsSampler(run, lik_ptr, loglik, specimens, chains=opts.pop("chains", CHAINS),
                            moves=opts.pop("moves", None),
                            prevalence_prior=opts.pop("prevalence_prior", None))
     return sampler.sample(seed=seed, negative_below=negative_below, positive_above=positive_above,
-                          **opts)
+                          start=start, **opts)
 
 
 def summary_of(result: GibbsResult, run, negative_below, positive_above) -> dict:
@@ -97,7 +98,7 @@ def decode_gibbs(run, lik_ptr, loglik, negative_below, positive_above, seed=None
 
 
 def sample_components(run, lik_ptr, loglik, comps, selected, seed=None, negative_below=0.01,
-                      positive_above=0.99, options=None) -> GibbsResult:
+                      positive_above=0.99, options=None, start=None) -> GibbsResult:
     """Sample only the specimens of components ``selected`` (fallback hook for ``auto``).
 
     The caller keeps its own probabilities elsewhere and takes ``result.probability`` for
@@ -113,7 +114,7 @@ def sample_components(run, lik_ptr, loglik, comps, selected, seed=None, negative
         raise InputError("an unknown prevalence links every specimen; use method gibbs",
                          parameters=("method",))
     return run_sampler(run, lik_ptr, loglik, specimens, seed, negative_below, positive_above,
-                       opts)
+                       opts, start)
 
 
 @dataclass
@@ -132,14 +133,14 @@ class Fallback:
 
 def fallback(run, lik_ptr, loglik, comps, selected, why: str, seed=None,
              negative_below=NEGATIVE_BELOW, positive_above=POSITIVE_ABOVE,
-             options=None) -> Fallback:
+             options=None, start=None) -> Fallback:
     """Decode components ``selected`` by the sampler because ``why`` (e.g. "BP did not converge").
 
     The hook for ``auto``: the caller writes ``probability`` (and ``mcse``) into its arrays at
     ``specimens``, convolves ``count_distribution`` with its other parts, and shows ``note``.
     """
     result = sample_components(run, lik_ptr, loglik, comps, selected, seed, negative_below,
-                               positive_above, options)
+                               positive_above, options, start)
     full = summary_of(result, run, negative_below, positive_above)
     full.pop("positives_posterior")  # covers the sampled part only; the caller convolves
     note = (f"{why}: {len(result.specimens)} sample(s) in {len(selected)} group(s) decoded by the "

@@ -127,11 +127,12 @@ class GibbsSampler:
                max_sweeps: int = MAX_SWEEPS, rhat_target: float = RHAT_TARGET,
                ess_target: float = ESS_TARGET, negative_below: float = 0.01,
                positive_above: float = 0.99, max_draws: int = MAX_DRAWS,
-               memory_budget: int = MEMORY_BUDGET, progress=None) -> GibbsResult:
+               memory_budget: int = MEMORY_BUDGET, progress=None, start=None) -> GibbsResult:
         """Run until every undecided specimen meets the R-hat and ESS targets, or ``max_sweeps``.
 
         ``seed`` (int or Generator) makes the run reproducible. ``max_sweeps`` counts recorded
-        sweeps per chain after ``warmup``.
+        sweeps per chain after ``warmup``. ``start``: P(x_i = 1) per specimen of the run to draw
+        the first chain's start from (e.g. belief propagation's marginals).
         """
         if int(max_sweeps) < 8:
             raise ValueError("max_sweeps must be at least 8")
@@ -143,7 +144,7 @@ class GibbsSampler:
         m, run, C = self.model, self.run_, self.chains
         n_order = len(m.order)
         pm = self.prevalence_move
-        state = ChainState.spread(m, run, C, rng, None if pm is None else (pm.a, pm.b))
+        state = ChainState.spread(m, run, C, rng, None if pm is None else (pm.a, pm.b), start)
         tally = np.zeros((C, 2), dtype=np.int64)
         draw_rows = int(max(2, min(max_draws // C, (self.budget // 2) // max(1, C * n_order))))
         notes = []

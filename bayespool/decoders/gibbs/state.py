@@ -55,12 +55,17 @@ class ChainState:
 
     @classmethod
     def spread(cls, model: GibbsModel, run, n_chains: int, rng: np.random.Generator,
-               prevalence_prior=None) -> "ChainState":
+               prevalence_prior=None, start=None) -> "ChainState":
+        """Over-dispersed starts: all negative, every pool's positive member, then states between
+        the prior and one half. ``start`` (P(x_i = 1) per specimen of the run, e.g. belief
+        propagation's marginals) replaces the all-negative start by a draw from it."""
         m = model.n_sampled
         x = np.zeros((n_chains, m), dtype=np.uint8)
         prior = run.prior[model.order]
         for c in range(n_chains):
-            if c == 1:
+            if c == 0 and start is not None:
+                x[c] = rng.random(m) < np.asarray(start, dtype=float)[model.order]
+            elif c == 1:
                 x[c] = model.positive_member
             elif c >= 2:
                 frac = (c - 1) / (n_chains - 1)  # in (0, 1]
