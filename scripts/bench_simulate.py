@@ -142,19 +142,34 @@ def bench_bayes(args):
           f"{'met' if c1 / runs <= BAYES_GOAL else 'NOT met'} (CPU time)")
 
 
+def _cpu_seconds() -> float:
+    """CPU seconds used so far by this process (run on each worker through ``client.run``)."""
+    import resource
+    r = resource.getrusage(resource.RUSAGE_SELF)
+    return r.ru_utime + r.ru_stime
+
+
 def bench_workers(args):
     from bayespool.simulation.engine import cluster_client
     n, p, runs = BAYES_CELL["samples"], BAYES_CELL["prevalence"], 4 * args.cohorts
     simulate("bayes", n, prevalence=p, runs=1, seed=0)
-    t_in, serial = timed(lambda: simulate("bayes", n, prevalence=p, runs=runs, seed=args.seed))
+    t_in, c_in, serial = cpu_timed(lambda: simulate("bayes", n, prevalence=p, runs=runs,
+                                                    seed=args.seed))
     with cluster_client(workers=2) as client:
         client.run(lambda: simulate("bayes", n, prevalence=p, runs=1, seed=0))  # workers import and load
-        t_two, remote = timed(lambda: simulate("bayes", n, prevalence=p, runs=runs, seed=args.seed,
-                                               client=client))
+        before = client.run(_cpu_seconds)
+        t_two, c_here, remote = cpu_timed(lambda: simulate("bayes", n, prevalence=p, runs=runs,
+                                                           seed=args.seed, client=client))
+        after = client.run(_cpu_seconds)
+    c_workers = sum(after[w] - before[w] for w in after)
     print(f"Bayesian loop, {runs} cohorts of {n} at {p:g}: in-process {t_in:.2f} s, Dask "
           f"LocalCluster of 2 processes {t_two:.2f} s (cluster started and warmed before timing)")
     print(f"  speed-up {t_in / t_two:.2f}x (goal {SPEEDUP_GOAL:g}x); identical numbers: "
           f"{remote.runs_frame.equals(serial.runs_frame)}")
+    print(f"  CPU seconds: in-process {c_in:.2f}; on the cluster {c_workers:.2f} in the workers + "
+          f"{c_here:.2f} here (pilot, scheduling, results), i.e. "
+          f"{(c_workers + c_here) / c_in:.2f}x the in-process work; on a busy machine the wall "
+          "ratio understates what two free cores give")
 
 
 def bench_study(args):

@@ -200,3 +200,88 @@ def test_unreachable_scheduler_and_bad_workers_are_one_line_errors(cli):
     r = cli("simulate", "--scheme", "individual", "--samples", 10, "--prevalence", 0.1,
             "--runs", 2, "--workers", 2, "--scheduler", "tcp://127.0.0.1:1")
     assert r.code == 2 and "not allowed with" in r.err
+
+
+def _our_tasks(dask_scheduler):
+    """Keys of the study's blocks that the scheduler still holds (run on the scheduler)."""
+    return [str(k) for k in dask_scheduler.tasks if str(k).startswith("bayespool-cohorts-")]
+
+
+def test_ctrl_c_during_a_study_cancels_its_futures(client):
+    class InterruptAfterFirst:
+        """A progress sink that raises KeyboardInterrupt (what Ctrl-C raises) once the cluster
+        has finished a block, with most blocks still queued or running."""
+
+        calls = 0
+
+        def update(self, n):
+            self.calls += 1
+            if self.calls == 2:  # call 1 is the in-process pilot
+                raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt) as interrupted:
+        simulate(SlowDorfman(pause=0.05), 60, prevalence=0.1, assay=ASSAY, runs=400, seed=3,
+                 batch=False, client=client, progress=InterruptAfterFirst())
+    # the traceback still references the futures, so without a cancel the scheduler would hold
+    # (and go on computing) the remaining blocks, about 10 s of work on two workers
+    deadline = time.monotonic() + 5
+    while client.run_on_scheduler(_our_tasks) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert not client.run_on_scheduler(_our_tasks)
+    assert interrupted.traceback  # held until here on purpose
+    # the cluster is still usable afterwards
+    again = simulate("dorfman", 40, prevalence=0.1, assay=ASSAY, runs=4, seed=3, batch=False,
+                     pool_size=4, client=client)
+    assert again.runs_frame.equals(simulate("dorfman", 40, prevalence=0.1, assay=ASSAY, runs=4,
+                                            seed=3, batch=False, pool_size=4).runs_frame)
+
+
+def test_ctrl_c_on_the_command_line_exits_130_and_writes_nothing(tmp_path):
+    # a terminal's Ctrl-C sends SIGINT to the whole foreground process group: the command and
+    # its LocalCluster's processes alike
+    out = tmp_path / "study.csv"
+    out.write_text("an earlier study\n")
+    report, plots = tmp_path / "study.html", tmp_path / "figures"
+    plots.mkdir()
+    args = _command("simulate", "--scheme", "bayes", "--samples", 300, "--prevalence", 0.02,
+                    "--runs", 2000, "--seed", 1, "--workers", 2, "--out", out, "--report", report,
+                    "--plots", plots)
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    proc = subprocess.Popen(args, env=env, cwd=tmp_path, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True, start_new_session=True)
+    try:
+        seen = []
+        deadline = time.monotonic() + 120
+        while time.monotonic() < deadline:  # the forecast comes just before the blocks go out
+            line = proc.stderr.readline()
+            if not line:
+                break
+            seen.append(line)
+            if "estimated duration" in line:
+                break
+        assert seen and "estimated duration" in seen[-1], "".join(seen)
+        time.sleep(1.0)  # blocks are running on the workers
+        assert proc.poll() is None, "the study ended before the interrupt"
+        os.killpg(proc.pid, signal.SIGINT)
+        stdout, stderr = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+            proc.wait(timeout=10)
+    assert proc.returncode == 130, stderr
+    assert "interrupted" in stderr
+    assert out.read_text() == "an earlier study\n"
+    assert not report.exists() and not any(plots.iterdir())
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["figures", "study.csv"]  # no temporary
+    # file left behind
+    # and no worker process outlives the command
+    deadline = time.monotonic() + 30
+    while time.monotonic() < deadline:
+        try:
+            os.killpg(proc.pid, 0)
+        except ProcessLookupError:
+            break
+        time.sleep(0.2)
+    else:
+        os.killpg(proc.pid, signal.SIGKILL)
+        pytest.fail("processes of the interrupted command were still running 30 s later")

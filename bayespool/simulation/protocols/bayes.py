@@ -11,6 +11,8 @@ is sequential Bayesian experimental design (Lindley 1956; for pooled tests Cutur
 """
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 import pandas as pd
 
@@ -21,6 +23,19 @@ from ..protocol import Outcome, Protocol, Tester
 DEFAULT_TESTS_PER_ROUND = 96   # one plate per round
 DEFAULT_RELATIVE = 0.5          # a round takes tests telling at least half of its best one
 DEFAULT_MAX_ROUNDS = 40
+
+_LOCAL = threading.local()
+
+
+def worker_memo() -> ExactMemo:
+    """The memo shared by every loop unpickled in this thread (a Dask worker plays many blocks
+    of cohorts, each arriving as a fresh copy of the protocol). Entries are keyed by everything an
+    enumeration reads, so sharing one across cells changes no number; one per thread, since a
+    worker may run several tasks at once."""
+    memo = getattr(_LOCAL, "memo", None)
+    if memo is None:
+        memo = _LOCAL.memo = ExactMemo()
+    return memo
 
 
 class BayesianLoop(Protocol):
@@ -68,11 +83,15 @@ class BayesianLoop(Protocol):
         self.remember = bool(remember)
         self._memo = ExactMemo() if self.remember else None
 
-    def __getstate__(self):  # the memo stays where it was filled (cheap to refill, can be large)
+    def __getstate__(self):  # the memo stays where it was filled (it can be large)
         state = dict(self.__dict__)
-        state["_memo"] = ExactMemo() if self.remember else None
+        state["_memo"] = None
         state["last_posterior"] = None
         return state
+
+    def __setstate__(self, state):  # where it lands, it takes that process's (thread's) memo
+        self.__dict__.update(state)
+        self._memo = worker_memo() if self.remember else None
 
     def parameters(self) -> dict:
         return {"max_pool_size": self.max_pool_size, "tests": self.tests_per_round,
