@@ -27,10 +27,16 @@ DRAWS = 200  # assays averaged over when the fit gives no sensitivity draws (spe
 METHODS = ("likelihood", "bayes")
 
 
+def draw_count(assay, n: int = DRAWS) -> int:
+    """How many assays :func:`assay_draws` gives."""
+    sens = len(assay.sens_draws) or 1
+    return max(n, sens) if assay.spec_beta is not None else sens
+
+
 def assay_draws(assay, n: int = DRAWS) -> list[Assay]:
     """Assays drawn evenly from an :class:`~bayespool.assay_spread.IntegratedAssay`'s spread."""
     sens = list(assay.sens_draws) or [assay.sensitivity]
-    m = max(n, len(sens)) if assay.spec_beta is not None else len(sens)
+    m = draw_count(assay, n)
     if assay.spec_beta is None:
         spec = np.full(m, assay.specificity)
     else:

@@ -107,23 +107,17 @@ class _SizeClass:
 
     def pmf(self, j: int, p: float) -> np.ndarray:
         """Binomial(d; k - j, p), d = 0..k - j, exact at p = 0 and p = 1."""
+        return self.pmf_matrix(np.array([p], dtype=float), j)[0]
+
+    def pmf_matrix(self, p: np.ndarray, j: int = 0) -> np.ndarray:
+        """Binomial(d; k - j, p) for every p (rows), d = 0..k - j, exact at p = 0 and p = 1."""
         n = self.k - j
         d = np.arange(n + 1)
-        if p <= 0.0:
-            return (d == 0).astype(float)
-        if p >= 1.0:
-            return (d == n).astype(float)
-        return np.exp(self.log_choose[j] + d * np.log(p) + (n - d) * np.log1p(-p))
-
-    def pmf_matrix(self, p: np.ndarray) -> np.ndarray:
-        """Binomial(d; k, p) for every p (rows), d = 0..k, exact at p = 0 and p = 1."""
-        k = self.k
-        d = np.arange(k + 1)
         inner = (p > 0.0) & (p < 1.0)
         q = np.where(inner, p, 0.5)[:, None]
-        out = np.exp(self.log_choose[0] + d * np.log(q) + (k - d) * np.log1p(-q))
+        out = np.exp(self.log_choose[j] + d * np.log(q) + (n - d) * np.log1p(-q))
         out[p <= 0.0] = (d == 0)
-        out[p >= 1.0] = (d == k)
+        out[p >= 1.0] = (d == n)
         return out
 
     def derivatives(self, p: float) -> np.ndarray:

@@ -20,7 +20,7 @@ from .difference import Difference, difference
 from .estimators import (Estimate, bias_corrected, clipped_note, maximum_likelihood,
                          minimum_infection_rate)
 from .integrated import METHODS as INTEGRATED_METHODS
-from .integrated import IntegratedLikelihood, assay_draws
+from .integrated import IntegratedLikelihood, draw_count
 from .intervals import METHODS, interval
 from .likelihood import PoolCells, PooledLikelihood
 from .pools import PooledData, pools_from_frame
@@ -250,7 +250,7 @@ def estimate_prevalence(pools, assay=None, *, by=(), interval: str | None = None
     diff = _difference(liks, by, compare, level, per)
     described = PERFECT if assay is None else assay.describe()
     if spread is not None:
-        described += (f", integrated over the fit's uncertainty ({len(assay_draws(spread))} assays "
+        described += (f", integrated over the fit's uncertainty ({draw_count(spread)} assays "
                       "drawn from it; one shared by every pool)")
         notes.append("estimates and intervals integrate the likelihood over the fitted assay's "
                      "uncertainty; no bias-corrected estimate is defined there"
